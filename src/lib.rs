@@ -1,0 +1,13 @@
+//! linegrid: calibration grids of spectral-line strength.
+//!
+//! The physics core (`constants`, `atoms`, `eos`) is pure: no files, terminal or threads.
+//! Units are CGS throughout unless a name says otherwise.
+#![warn(missing_docs)]
+#![deny(clippy::float_cmp)]
+
+pub mod atoms;
+pub mod constants;
+pub mod eos;
+pub mod error;
+
+pub use error::{Error, Result};
