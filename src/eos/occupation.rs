@@ -117,7 +117,9 @@ impl OccupationModel {
         let r = A0 * (5.0 * nf * nf + 1.0) / (4.0 * self.z);
         let sh = r + self.r_perturber_h;
         let she = r + self.r_perturber_he;
-        (-(self.neutral_coef_h * sh * sh * sh + self.neutral_coef_he * she * she * she)).exp()
+        let x = self.neutral_coef_h * sh * sh * sh + self.neutral_coef_he * she * she * she;
+        // exp(−x) = 1 to rounding below 1e-17: skip the exponential.
+        if x < 1e-17 { 1.0 } else { (-x).exp() }
     }
 
     /// Occupation probability w_n = w_neutral · w_charged.
