@@ -3,6 +3,7 @@
 //! partition functions and the Saha equation. Each table entry carries its provenance.
 
 pub mod hydrogenic;
+pub mod lines;
 
 use std::collections::HashMap;
 use std::sync::OnceLock;
