@@ -76,32 +76,81 @@ impl CompositionArgs {
     }
 }
 
+/// One thermodynamic point: temperature, one density variable, composition, level cut-off.
+/// Shared by every verb that needs a state.
+#[derive(Args, Clone)]
+#[command(group(ArgGroup::new("density").required(true).args(["hydrogen_density", "gas_pressure", "electron_density", "electron_pressure"])))]
+pub struct PointArgs {
+    /// Temperature in K (1000 to 1e6)
+    #[arg(long, allow_negative_numbers = true, value_name = "K")]
+    pub temperature: f64,
+    /// Total hydrogen density in cm^-3 (all stages)
+    #[arg(long, allow_negative_numbers = true, value_name = "CM-3")]
+    pub hydrogen_density: Option<f64>,
+    /// Gas pressure in dyn cm^-2 (nuclei and electrons)
+    #[arg(long, allow_negative_numbers = true, value_name = "DYN/CM2")]
+    pub gas_pressure: Option<f64>,
+    /// Electron density in cm^-3
+    #[arg(long, allow_negative_numbers = true, value_name = "CM-3")]
+    pub electron_density: Option<f64>,
+    /// Electron pressure n_e k T in dyn cm^-2
+    #[arg(long, allow_negative_numbers = true, value_name = "DYN/CM2")]
+    pub electron_pressure: Option<f64>,
+    #[command(flatten)]
+    pub composition: CompositionArgs,
+    /// How the bound levels end
+    #[arg(long, value_enum, default_value = "occupation")]
+    pub cutoff: CutoffChoice,
+}
+
+impl PointArgs {
+    /// The state request these options describe, listing `levels` hydrogen shells.
+    pub fn request(&self, levels: u32) -> Result<StateRequest, Failure> {
+        let density = match (
+            self.hydrogen_density,
+            self.gas_pressure,
+            self.electron_density,
+            self.electron_pressure,
+        ) {
+            (Some(v), _, _, _) => Density::HydrogenDensity(v),
+            (_, Some(v), _, _) => Density::GasPressure(v),
+            (_, _, Some(v), _) => Density::ElectronDensity(v),
+            (_, _, _, Some(v)) => Density::ElectronPressure(v),
+            _ => unreachable!("clap requires one density option"),
+        };
+        Ok(StateRequest {
+            temperature: self.temperature,
+            density,
+            composition: self.composition.composition()?,
+            options: EosOptions {
+                cutoff: match self.cutoff {
+                    CutoffChoice::Occupation => LevelCutoff::OccupationProbability,
+                    CutoffChoice::Debye => LevelCutoff::Debye,
+                },
+                hydrogen_levels: levels,
+            },
+        })
+    }
+
+    /// Solve the point; bad input maps to exit 2, non-convergence to exit 1.
+    #[allow(dead_code)] // used by the slab verbs (next commit)
+    pub fn solve(&self, levels: u32) -> Result<(StateRequest, State), Failure> {
+        let req = self.request(levels)?;
+        match eos::solve_with(AtomicData::embedded(), &req) {
+            Ok(s) => Ok((req, s)),
+            Err(StateError::Input(e)) => Err(Failure::from_lib(e)),
+            Err(StateError::NotConverged(nc)) => Err(Failure::failed(nc)),
+        }
+    }
+}
+
 #[derive(Args)]
 #[command(
-    group(ArgGroup::new("density").required(true).args(["hydrogen_density", "gas_pressure", "electron_density", "electron_pressure"])),
     after_help = "Examples:\n  linegrid state --temperature 9500 --electron-pressure 200 --pure-hydrogen\n  linegrid state --temperature 5800 --gas-pressure 1.2e5 --metallicity -0.5 --json\n  linegrid state --temperature 20000 --hydrogen-density 1e15 --elements H,He --cutoff debye"
 )]
 pub struct StateArgs {
-    /// Temperature in K (1000 to 1e6)
-    #[arg(long, allow_negative_numbers = true, value_name = "K")]
-    temperature: f64,
-    /// Total hydrogen density in cm^-3 (all stages)
-    #[arg(long, allow_negative_numbers = true, value_name = "CM-3")]
-    hydrogen_density: Option<f64>,
-    /// Gas pressure in dyn cm^-2 (nuclei and electrons)
-    #[arg(long, allow_negative_numbers = true, value_name = "DYN/CM2")]
-    gas_pressure: Option<f64>,
-    /// Electron density in cm^-3
-    #[arg(long, allow_negative_numbers = true, value_name = "CM-3")]
-    electron_density: Option<f64>,
-    /// Electron pressure n_e k T in dyn cm^-2
-    #[arg(long, allow_negative_numbers = true, value_name = "DYN/CM2")]
-    electron_pressure: Option<f64>,
     #[command(flatten)]
-    composition: CompositionArgs,
-    /// How the bound levels end
-    #[arg(long, value_enum, default_value = "occupation")]
-    cutoff: CutoffChoice,
+    point: PointArgs,
     /// Number of hydrogen shells to list (1 to 1000)
     #[arg(long, default_value_t = 20, value_name = "N")]
     levels: u32,
@@ -111,30 +160,7 @@ pub struct StateArgs {
 }
 
 pub fn run(a: StateArgs) -> Result<(), Failure> {
-    let density = match (
-        a.hydrogen_density,
-        a.gas_pressure,
-        a.electron_density,
-        a.electron_pressure,
-    ) {
-        (Some(v), _, _, _) => Density::HydrogenDensity(v),
-        (_, Some(v), _, _) => Density::GasPressure(v),
-        (_, _, Some(v), _) => Density::ElectronDensity(v),
-        (_, _, _, Some(v)) => Density::ElectronPressure(v),
-        _ => unreachable!("clap requires one density option"),
-    };
-    let req = StateRequest {
-        temperature: a.temperature,
-        density,
-        composition: a.composition.composition()?,
-        options: EosOptions {
-            cutoff: match a.cutoff {
-                CutoffChoice::Occupation => LevelCutoff::OccupationProbability,
-                CutoffChoice::Debye => LevelCutoff::Debye,
-            },
-            hydrogen_levels: a.levels,
-        },
-    };
+    let req = a.point.request(a.levels)?;
     let data = AtomicData::embedded();
     match eos::solve_with(data, &req) {
         Ok(s) => {
