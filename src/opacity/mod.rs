@@ -1,0 +1,3 @@
+//! Opacity: line profiles and continuum sources.
+
+pub mod stark;
