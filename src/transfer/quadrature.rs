@@ -1,0 +1,1058 @@
+//! Equivalent-width integration: W = ∫_{−∞}^{∞} D(x) dx for a line's depth D(x).
+//!
+//! `x` is the offset from line centre in whatever unit the caller chooses (cm or Å of
+//! wavelength, Hz, Doppler widths); the `LineScale` widths and the wing coefficient are in
+//! the same unit, and W comes back in it. `D(x)` is any integrand — 1 − F/F_c for an
+//! absorption line, (F − F_c)/F_c for emission (negative depth) — evaluated on both sides
+//! separately, so profiles may be asymmetric.
+//!
+//! ## Method
+//!
+//! The integral is split into a few panels whose variables follow the line's own scales,
+//! and the panels are integrated by the Gauss–Kronrod pairs of Kronrod (1965) as tabulated
+//! in QUADPACK (Piessens, de Doncker-Kapenga, Überhuber & Kahaner, *QUADPACK: A Subroutine
+//! Package for Automatic Integration*, Springer 1983): G7–K15 in the core and G3–K7 in the
+//! wings. The global strategy is QUADPACK's QAG: the panel with the largest error estimate
+//! is bisected until the sum of the estimates is below `rtol |W|`. The estimate of a panel
+//! is |K − G| (the Kronrod result is kept; |K − G| bounds the error of the Gauss result,
+//! so it is pessimistic for the Kronrod one by orders of magnitude on smooth panels; on
+//! the nearly discontinuous edge of a strongly saturated core it is close to the true
+//! error). QUADPACK's own scaling (200|K − G|)^{3/2} is not used: at 10⁻⁴ it is stricter
+//! than |K − G| itself and would cost a further bisection on most lines.
+//!
+//! Scales (s = Doppler-like core width, τ₀ = line-centre optical depth, A = wing coefficient,
+//! τ(x) ≈ A/x² for |x| ≫ s):
+//!
+//! - the saturated Doppler core ends near x_c = s √(ln τ₀), where τ = 1, in an edge of width
+//!   w_c = s²/(2x_c) (the e-folding length of τ there);
+//! - a damping wing saturates out to √A;
+//! - beyond x_I = max(√A, 4s, x_g) the wing is a power law: x_g is where the Doppler core
+//!   has fallen to 10⁻⁴ of the wing, τ₀ e^{−x_g²/s²} = 10⁻⁴ A/x_g² (with x_g² ≈ 25 s² inside
+//!   the logarithm).
+//!
+//! Panels, on each side σ = ±1:
+//!
+//! - a visible saturated edge (τ₀ > e, and A/x_c² < 10 so that the wing does not hide it):
+//!   x = σ(x_c + w_c sinh u), two panels u ∈ [−asinh(x_c/w_c), 0] and [0, asinh((x_I −
+//!   x_c)/w_c)], so that the plateau is compressed logarithmically and the edge is resolved
+//!   on its own width;
+//! - otherwise, with a wing: x = σu on [0, x_I] (a smooth core, or a plateau saturated by the
+//!   wing); without a wing: x = σ s sinh u up to the cut-off, which resolves the core and
+//!   compresses the rest logarithmically;
+//! - the wing: x = σ x_I/v for v ∈ [x_I/X, 1] with X = 1000 x_I. For τ = A/x² the depth
+//!   D ≈ D_sat(1 − e^{−A v²/x_I²}) and dx = x_I dv/v², so the integrand is smooth and nearly
+//!   constant in v (an exact constant in the linear regime): three Gauss points suffice;
+//! - beyond X, the analytic tail (below), with its amplitude taken from D(±X).
+//!
+//! Without a wing the cut-off X is where the Doppler core is at 10⁻¹² of max(τ₀, 1); the part
+//! beyond is bounded by |D(X)| X (the integral of a depth falling at least as fast as 1/x²)
+//! and that bound is added to the error estimate; where it dominates, the integration is
+//! extended to 2X, and again, before any panel is bisected.
+//!
+//! ## The analytic tail
+//!
+//! For D(x) = D_sat(1 − exp(−τ_X X²/x²)) beyond X (the wing of a line with τ(x) = A/x²,
+//! τ_X = A/X²), substituting y = X/x and integrating by parts,
+//!
+//! ∫_X^∞ D dx = D_sat X ∫₀¹ (1 − e^{−τ_X y²}) y^{−2} dy
+//!            = D_sat X { [−(1 − e^{−τ_X y²})/y]₀¹ + 2τ_X ∫₀¹ e^{−τ_X y²} dy }
+//!            = D_sat X [√(π τ_X) erf(√τ_X) − (1 − e^{−τ_X})].
+//!
+//! D_sat is not needed from the caller: D(X) = D_sat(1 − e^{−τ_X}) fixes it, so the tail is
+//! D(X) X [√(π τ_X) erf(√τ_X) − (1 − e^{−τ_X})]/(1 − e^{−τ_X}) → D(X) X (1 + τ_X/3) as
+//! τ_X → 0. With X = 1000 x_I, τ_X ≤ 10⁻⁶ and the tail is ≈ D(X) X, whatever the saturation
+//! law. Its error estimate is |tail| (s/X)²: the relative departure of a Voigt wing from
+//! A/x² at X is (3/2)(s/X)² in Doppler units, s the Doppler width.
+//!
+//! ## Cost and accuracy (measured by this module's tests against a dense Simpson reference)
+//!
+//! Pure Doppler lines τ₀ ∈ [10⁻³, 10⁸]: mean 53 evaluations per line. Voigt lines
+//! a ∈ {10⁻³, 10⁻², 0.1, 1}, τ₀ ∈ [10⁻², 10⁶]: mean 62. Errors stay below 2×10⁻⁶ at
+//! `rtol` = 10⁻⁴ (see the tests for the exact figures). Wrong hints (τ₀ off by 10×, A off by
+//! 3×, no τ₀ at all) cost more evaluations, not accuracy.
+
+use super::special::{erf, erfcx};
+use std::fmt;
+
+/// Gauss–Kronrod 15-point nodes on [−1, 1], non-negative half, decreasing (QUADPACK `qk15`).
+const XGK15: [f64; 8] = [
+    0.991_455_371_120_812_6,
+    0.949_107_912_342_758_5,
+    0.864_864_423_359_769_1,
+    0.741_531_185_599_394_4,
+    0.586_087_235_467_691_1,
+    0.405_845_151_377_397_2,
+    0.207_784_955_007_898_5,
+    0.0,
+];
+/// Kronrod 15-point weights for `XGK15`.
+const WGK15: [f64; 8] = [
+    0.022_935_322_010_529_22,
+    0.063_092_092_629_978_55,
+    0.104_790_010_322_250_2,
+    0.140_653_259_715_525_9,
+    0.169_004_726_639_267_9,
+    0.190_350_578_064_785_4,
+    0.204_432_940_075_298_9,
+    0.209_482_141_084_727_8,
+];
+/// Gauss 7-point weights for the nodes `XGK15[1]`, `XGK15[3]`, `XGK15[5]`, `XGK15[7]`.
+const WG7: [f64; 4] = [
+    0.129_484_966_168_869_7,
+    0.279_705_391_489_276_7,
+    0.381_830_050_505_118_9,
+    0.417_959_183_673_469_4,
+];
+/// Gauss–Kronrod 7-point nodes (Kronrod extension of the 3-point Gauss rule).
+const XGK7: [f64; 4] = [
+    0.960_491_268_708_020_3,
+    0.774_596_669_241_483_4,
+    0.434_243_749_346_802_6,
+    0.0,
+];
+/// Kronrod 7-point weights for `XGK7`.
+const WGK7: [f64; 4] = [
+    0.104_656_226_026_467_3,
+    0.268_488_089_868_333_4,
+    0.401_397_414_775_962_2,
+    0.450_916_538_658_474_1,
+];
+/// Gauss 3-point weights for the nodes `XGK7[1]` (= √(3/5)) and `XGK7[3]` (= 0).
+const WG3: [f64; 2] = [5.0 / 9.0, 8.0 / 9.0];
+
+/// Default relative tolerance of the equivalent width.
+pub const DEFAULT_RTOL: f64 = 1.0e-4;
+/// Smallest accepted relative tolerance (requests below are raised to it).
+pub const MIN_RTOL: f64 = 1.0e-13;
+/// Evaluation budget of one line; past it the result is returned with `converged = false`.
+pub const MAX_EVALUATIONS: usize = 20_000;
+
+/// Saturated-edge test: the Doppler edge is resolved on its own unless the wing optical
+/// depth there exceeds this (then the wing hides it).
+const EDGE_HIDDEN_BY_WING: f64 = 10.0;
+/// Where the Doppler core counts as gone, relative to the wing optical depth.
+const CORE_GONE_IN_WING: f64 = 1.0e-4;
+/// Where the Doppler core counts as gone without a wing, relative to max(τ₀, 1).
+const CORE_GONE: f64 = 1.0e-12;
+/// The wing panel starts at least this many core widths out.
+const WING_START_MIN: f64 = 4.0;
+/// The analytic tail starts at this multiple of the wing panel's start.
+const TAIL_START: f64 = 1.0e3;
+
+/// Why a `LineScale` was refused.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum InvalidLineScale {
+    /// The core width must be positive and finite.
+    Core(f64),
+    /// The line-centre optical depth must be non-negative and finite.
+    PeakOpticalDepth(f64),
+    /// The wing coefficient (or the Voigt damping parameter) must be non-negative and finite.
+    Wing(f64),
+}
+
+impl fmt::Display for InvalidLineScale {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Self::Core(v) => write!(f, "line core width must be positive and finite (got {v})"),
+            Self::PeakOpticalDepth(v) => write!(
+                f,
+                "line-centre optical depth must be non-negative and finite (got {v})"
+            ),
+            Self::Wing(v) => write!(
+                f,
+                "damping-wing coefficient must be non-negative and finite (got {v})"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for InvalidLineScale {}
+
+/// The scales of one line, in the caller's unit of x (see the module docs): they place the
+/// panels; the integration adapts from there, so rough values cost evaluations, not accuracy.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LineScale {
+    core: f64,
+    peak_optical_depth: f64,
+    wing: Option<f64>,
+}
+
+impl LineScale {
+    /// A line with a Doppler-like core of width `core` (the 1/e half-width s of
+    /// τ ∝ e^{−x²/s²}) and line-centre optical depth `peak_optical_depth` (0 if unknown: the
+    /// line is then assumed unsaturated), whose wings fall faster than any power of x.
+    pub fn doppler(core: f64, peak_optical_depth: f64) -> Result<Self, InvalidLineScale> {
+        if !(core.is_finite() && core > 0.0) {
+            return Err(InvalidLineScale::Core(core));
+        }
+        if !(peak_optical_depth.is_finite() && peak_optical_depth >= 0.0) {
+            return Err(InvalidLineScale::PeakOpticalDepth(peak_optical_depth));
+        }
+        Ok(Self {
+            core,
+            peak_optical_depth,
+            wing: None,
+        })
+    }
+
+    /// A Voigt line τ(x) = τ₀ H(a, x/s)/H(a, 0): Doppler width `core` = s, damping parameter
+    /// a = Γ/(4π Δν_D) (Γ the FWHM of the Lorentzian in rad s⁻¹). Its wing coefficient is
+    /// A = τ₀ a s²/(√π H(a, 0)), from H(a, u) → a/(√π u²), with H(a, 0) = erfcx(a).
+    pub fn voigt(
+        core: f64,
+        peak_optical_depth: f64,
+        damping: f64,
+    ) -> Result<Self, InvalidLineScale> {
+        let scale = Self::doppler(core, peak_optical_depth)?;
+        if !(damping.is_finite() && damping >= 0.0) {
+            return Err(InvalidLineScale::Wing(damping));
+        }
+        let a_coef = peak_optical_depth * damping * core * core
+            / (std::f64::consts::PI.sqrt() * erfcx(damping));
+        scale.with_wing(a_coef)
+    }
+
+    /// The same line with a damping wing τ(x) ≈ `coefficient`/x² for |x| ≫ core
+    /// (units of x²); a zero coefficient means no wing.
+    pub fn with_wing(self, coefficient: f64) -> Result<Self, InvalidLineScale> {
+        if !(coefficient.is_finite() && coefficient >= 0.0) {
+            return Err(InvalidLineScale::Wing(coefficient));
+        }
+        Ok(Self {
+            wing: (coefficient > 0.0).then_some(coefficient),
+            ..self
+        })
+    }
+
+    /// Core width s.
+    pub fn core(&self) -> f64 {
+        self.core
+    }
+
+    /// Line-centre optical depth τ₀ as given.
+    pub fn peak_optical_depth(&self) -> f64 {
+        self.peak_optical_depth
+    }
+
+    /// Wing coefficient A (τ ≈ A/x²), if the line has a damping wing.
+    pub fn wing(&self) -> Option<f64> {
+        self.wing
+    }
+}
+
+/// The result of `integrate_line`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LineIntegral {
+    /// ∫_{−∞}^{∞} D(x) dx, in the unit of x (times the unit of D).
+    pub value: f64,
+    /// Estimated absolute error of `value` (sum of the panel estimates and the tail's).
+    pub error: f64,
+    /// Number of calls of the depth function.
+    pub evaluations: usize,
+    /// The analytic tails beyond ±X, both sides (included in `value`; 0 without a wing).
+    pub tail: f64,
+    /// Whether `error ≤ rtol |value|` was reached within `MAX_EVALUATIONS`.
+    pub converged: bool,
+}
+
+/// Variable of one panel: x as a function of the panel variable u, with dx/du.
+#[derive(Debug, Clone, Copy)]
+enum Map {
+    /// x = σ(c + w sinh u): centred on a saturated edge.
+    Edge { sign: f64, centre: f64, width: f64 },
+    /// x = σ u.
+    Linear { sign: f64 },
+    /// x = σ s sinh u: a core of width s with logarithmic wings.
+    Core { sign: f64, width: f64 },
+    /// x = σ x_I/u: a power-law wing starting at x_I (u = 1).
+    Wing { sign: f64, start: f64 },
+}
+
+impl Map {
+    /// (x, dx/du) at u; the Jacobian is taken positive (panels run outward from x = 0).
+    fn point(&self, u: f64) -> (f64, f64) {
+        match *self {
+            Map::Edge {
+                sign,
+                centre,
+                width,
+            } => (sign * (centre + width * u.sinh()), width * u.cosh()),
+            Map::Linear { sign } => (sign * u, 1.0),
+            Map::Core { sign, width } => (sign * width * u.sinh(), width * u.cosh()),
+            Map::Wing { sign, start } => (sign * start / u, start / (u * u)),
+        }
+    }
+
+    /// The panel variable u where |x| = `distance` (for the outward-extensible maps).
+    fn variable_at(&self, distance: f64) -> f64 {
+        match *self {
+            Map::Edge { centre, width, .. } => ((distance - centre) / width).asinh(),
+            Map::Linear { .. } => distance,
+            Map::Core { width, .. } => (distance / width).asinh(),
+            Map::Wing { start, .. } => start / distance,
+        }
+    }
+}
+
+/// The embedded pair of a panel.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Rule {
+    /// Gauss 7 / Kronrod 15.
+    Gk15,
+    /// Gauss 3 / Kronrod 7.
+    Gk7,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Panel {
+    lo: f64,
+    hi: f64,
+    map: Map,
+    rule: Rule,
+    value: f64,
+    error: f64,
+}
+
+/// Counts the calls of the caller's depth function.
+struct Counted<F> {
+    depth: F,
+    calls: usize,
+}
+
+impl<F: FnMut(f64) -> f64> Counted<F> {
+    fn at(&mut self, x: f64) -> f64 {
+        self.calls += 1;
+        (self.depth)(x)
+    }
+
+    /// Integrand in the panel variable: D(x(u)) dx/du.
+    fn mapped(&mut self, map: &Map, u: f64) -> f64 {
+        let (x, jac) = map.point(u);
+        self.at(x) * jac
+    }
+
+    fn panel(&mut self, map: Map, rule: Rule, lo: f64, hi: f64) -> Panel {
+        let centre = 0.5 * (lo + hi);
+        let half = 0.5 * (hi - lo);
+        let (kronrod, gauss) = match rule {
+            Rule::Gk15 => {
+                let fc = self.mapped(&map, centre);
+                let (mut k, mut g) = (WGK15[7] * fc, WG7[3] * fc);
+                for j in 0..7 {
+                    let pair = self.mapped(&map, centre - half * XGK15[j])
+                        + self.mapped(&map, centre + half * XGK15[j]);
+                    k += WGK15[j] * pair;
+                    if j % 2 == 1 {
+                        g += WG7[j / 2] * pair;
+                    }
+                }
+                (k, g)
+            }
+            Rule::Gk7 => {
+                let fc = self.mapped(&map, centre);
+                let (mut k, mut g) = (WGK7[3] * fc, WG3[1] * fc);
+                for j in 0..3 {
+                    let pair = self.mapped(&map, centre - half * XGK7[j])
+                        + self.mapped(&map, centre + half * XGK7[j]);
+                    k += WGK7[j] * pair;
+                    if j == 1 {
+                        g += WG3[0] * pair;
+                    }
+                }
+                (k, g)
+            }
+        };
+        Panel {
+            lo,
+            hi,
+            map,
+            rule,
+            value: kronrod * half,
+            error: ((kronrod - gauss) * half).abs(),
+        }
+    }
+}
+
+/// ∫_X^∞ D dx for a wing D = D_sat(1 − e^{−τ_X X²/x²}) whose value at X is `depth_at_x`
+/// (the module docs derive it): D(X) X [√(πτ) erf √τ − (1 − e^{−τ})]/(1 − e^{−τ}).
+pub fn lorentz_wing_tail(depth_at_x: f64, x: f64, tau_x: f64) -> f64 {
+    if tau_x <= 0.0 {
+        return depth_at_x * x;
+    }
+    let absorbed = -(-tau_x).exp_m1();
+    let root = tau_x.sqrt();
+    let ratio = ((std::f64::consts::PI * tau_x).sqrt() * erf(root) - absorbed) / absorbed;
+    depth_at_x * x * ratio
+}
+
+/// Where the panels go for one line (see the module docs).
+#[derive(Debug, Clone, Copy)]
+struct Plan {
+    /// Saturated Doppler edge (x_c, w_c), if it is resolved on its own.
+    edge: Option<(f64, f64)>,
+    /// End of the core panels: the wing panel's start with a wing, the cut-off without.
+    inner: f64,
+    /// Start of the analytic tail (with a wing) or cut-off (without).
+    outer: f64,
+}
+
+fn plan(scale: &LineScale) -> Plan {
+    let s = scale.core;
+    let tau0 = scale.peak_optical_depth;
+    let x_c = if tau0 > std::f64::consts::E {
+        s * tau0.ln().sqrt()
+    } else {
+        0.0
+    };
+    let w_c = if x_c > 0.0 { s * s / (2.0 * x_c) } else { s };
+    let edge_visible = x_c > 0.0
+        && scale
+            .wing
+            .is_none_or(|a| a / (x_c * x_c) < EDGE_HIDDEN_BY_WING);
+    let edge = edge_visible.then_some((x_c, w_c));
+    match scale.wing {
+        Some(a) => {
+            // τ₀ e^{−x²/s²} = ε A/x² with x² ≈ 25 s² inside the logarithm.
+            let arg = tau0 * 25.0 * s * s / (a * CORE_GONE_IN_WING);
+            let x_g = s * arg.max(1.0).ln().sqrt();
+            let mut inner = x_g.max(a.sqrt()).max(WING_START_MIN * s);
+            if edge_visible {
+                inner = inner.max(x_c + 4.0 * w_c);
+            }
+            Plan {
+                edge,
+                inner,
+                outer: TAIL_START * inner,
+            }
+        }
+        None => {
+            let mut cut = s * (tau0.max(1.0) / CORE_GONE).ln().sqrt();
+            if edge_visible {
+                cut = cut.max(x_c + 10.0 * w_c);
+            }
+            Plan {
+                edge,
+                inner: cut,
+                outer: cut,
+            }
+        }
+    }
+}
+
+/// The outer end of one side without a wing: the last core panel ends at `variable`
+/// (|x| = `cut`), and the neglected rest is bounded by |D(cut)| cut.
+#[derive(Debug, Clone, Copy)]
+struct OpenEnd {
+    map: Map,
+    variable: f64,
+    cut: f64,
+    bound: f64,
+}
+
+/// The equivalent width W = ∫_{−∞}^{∞} `depth`(x) dx of one line, to relative accuracy
+/// `rtol` (raised to `MIN_RTOL` if smaller; NaN means `DEFAULT_RTOL`). See the module docs
+/// for the method, the units (the caller's) and the cost.
+pub fn integrate_line(depth: impl FnMut(f64) -> f64, scale: &LineScale, rtol: f64) -> LineIntegral {
+    let rtol = if rtol.is_nan() {
+        DEFAULT_RTOL
+    } else {
+        rtol.max(MIN_RTOL)
+    };
+    let mut f = Counted { depth, calls: 0 };
+    let p = plan(scale);
+    let mut panels: Vec<Panel> = Vec::with_capacity(16);
+    let mut tails = [0.0f64; 2];
+    let mut tail_errors = [0.0f64; 2];
+    let mut open: [Option<OpenEnd>; 2] = [None, None];
+
+    for (k, sign) in [1.0f64, -1.0].into_iter().enumerate() {
+        // core panels
+        let last_core = if let Some((centre, width)) = p.edge {
+            let map = Map::Edge {
+                sign,
+                centre,
+                width,
+            };
+            let lo = map.variable_at(0.0);
+            let hi = map.variable_at(p.inner);
+            panels.push(f.panel(map, Rule::Gk15, lo, 0.0));
+            panels.push(f.panel(map, Rule::Gk15, 0.0, hi));
+            (map, hi)
+        } else if scale.wing.is_some() {
+            let map = Map::Linear { sign };
+            panels.push(f.panel(map, Rule::Gk15, 0.0, p.inner));
+            (map, p.inner)
+        } else {
+            let map = Map::Core {
+                sign,
+                width: scale.core,
+            };
+            let hi = map.variable_at(p.inner);
+            panels.push(f.panel(map, Rule::Gk15, 0.0, hi));
+            (map, hi)
+        };
+        match scale.wing {
+            Some(a) => {
+                let map = Map::Wing {
+                    sign,
+                    start: p.inner,
+                };
+                panels.push(f.panel(map, Rule::Gk7, p.inner / p.outer, 1.0));
+                let d_x = f.at(sign * p.outer);
+                tails[k] = lorentz_wing_tail(d_x, p.outer, a / (p.outer * p.outer));
+                tail_errors[k] = tails[k].abs() * (scale.core / p.outer).powi(2);
+            }
+            None => {
+                let d_x = f.at(sign * p.outer);
+                let bound = d_x.abs() * p.outer;
+                tail_errors[k] = bound;
+                open[k] = Some(OpenEnd {
+                    map: last_core.0,
+                    variable: last_core.1,
+                    cut: p.outer,
+                    bound,
+                });
+            }
+        }
+    }
+
+    loop {
+        let value: f64 = panels.iter().map(|q| q.value).sum::<f64>() + tails[0] + tails[1];
+        let error: f64 =
+            panels.iter().map(|q| q.error).sum::<f64>() + tail_errors[0] + tail_errors[1];
+        let converged = error <= rtol * value.abs();
+        if converged || f.calls >= MAX_EVALUATIONS {
+            return LineIntegral {
+                value,
+                error,
+                evaluations: f.calls,
+                tail: tails[0] + tails[1],
+                converged,
+            };
+        }
+        let (worst, worst_error) = panels.iter().enumerate().map(|(i, q)| (i, q.error)).fold(
+            (0, f64::NEG_INFINITY),
+            |acc, c| if c.1 > acc.1 { c } else { acc },
+        );
+        // An open end whose bound dominates: integrate on to twice the distance.
+        let widest_end = (0..2).filter_map(|k| open[k].map(|e| (k, e.bound))).fold(
+            None,
+            |acc: Option<(usize, f64)>, c| match acc {
+                Some(a) if a.1 >= c.1 => Some(a),
+                _ => Some(c),
+            },
+        );
+        if let Some((k, bound)) = widest_end {
+            // (never past 10³⁰⁰: a depth that does not decay ends on the evaluation budget)
+            if bound > worst_error && open[k].is_some_and(|e| e.cut < 1e300) {
+                let end = open[k].expect("open end present");
+                let sign = if k == 0 { 1.0 } else { -1.0 };
+                let cut = 2.0 * end.cut;
+                let hi = end.map.variable_at(cut);
+                panels.push(f.panel(end.map, Rule::Gk15, end.variable, hi));
+                let bound = f.at(sign * cut).abs() * cut;
+                tail_errors[k] = bound;
+                open[k] = Some(OpenEnd {
+                    variable: hi,
+                    cut,
+                    bound,
+                    ..end
+                });
+                continue;
+            }
+        }
+        let q = panels.swap_remove(worst);
+        let mid = 0.5 * (q.lo + q.hi);
+        panels.push(f.panel(q.map, q.rule, q.lo, mid));
+        panels.push(f.panel(q.map, q.rule, mid, q.hi));
+    }
+}
+
+/// Gauss–Legendre nodes and weights on [−1, 1], by Newton's iteration on the three-term
+/// recurrence of P_n from the Chebyshev-like first guess cos(π(i − ¼)/(n + ½)) (Press et al.,
+/// *Numerical Recipes*, 3rd ed. 2007, §4.6). Nodes ascending.
+pub fn gauss_legendre(n: usize) -> (Vec<f64>, Vec<f64>) {
+    let mut x = vec![0.0; n];
+    let mut w = vec![0.0; n];
+    let nf = n as f64;
+    for i in 0..n.div_ceil(2) {
+        let mut z = (std::f64::consts::PI * (i as f64 + 0.75) / (nf + 0.5)).cos();
+        let mut dp = 1.0;
+        for _ in 0..100 {
+            let (mut p1, mut p2) = (1.0, 0.0);
+            for j in 0..n {
+                let jf = j as f64;
+                let p3 = p2;
+                p2 = p1;
+                p1 = ((2.0 * jf + 1.0) * z * p2 - jf * p3) / (jf + 1.0);
+            }
+            dp = nf * (z * p1 - p2) / (z * z - 1.0);
+            let dz = p1 / dp;
+            z -= dz;
+            if dz.abs() <= 1e-16 {
+                break;
+            }
+        }
+        x[i] = -z;
+        x[n - 1 - i] = z;
+        w[i] = 2.0 / ((1.0 - z * z) * dp * dp);
+        w[n - 1 - i] = w[i];
+    }
+    (x, w)
+}
+
+/// Brute-force reference for tests: composite Simpson's rule with `intervals` (even)
+/// intervals on x = s sinh t over |x| ≤ `x_max`, plus the same analytic tails as
+/// `integrate_line` when the line has a wing.
+#[cfg(test)]
+pub(crate) fn brute_force_line(
+    mut depth: impl FnMut(f64) -> f64,
+    scale: &LineScale,
+    x_max: f64,
+    intervals: usize,
+) -> f64 {
+    assert!(intervals % 2 == 0 && intervals > 0);
+    let s = scale.core;
+    let t_max = (x_max / s).asinh();
+    let h = 2.0 * t_max / intervals as f64;
+    let mut sum = 0.0;
+    for i in 0..=intervals {
+        let t = -t_max + i as f64 * h;
+        let weight = if i == 0 || i == intervals {
+            1.0
+        } else if i % 2 == 1 {
+            4.0
+        } else {
+            2.0
+        };
+        sum += weight * depth(s * t.sinh()) * s * t.cosh();
+    }
+    let mut total = sum * h / 3.0;
+    if let Some(a) = scale.wing {
+        let tau_x = a / (x_max * x_max);
+        total += lorentz_wing_tail(depth(x_max), x_max, tau_x);
+        total += lorentz_wing_tail(depth(-x_max), x_max, tau_x);
+    }
+    total
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::HashMap;
+
+    fn rel(a: f64, b: f64) -> f64 {
+        ((a - b) / b).abs()
+    }
+
+    /// ∫_{−1}^{1} x^d dx.
+    fn moment(d: i32) -> f64 {
+        if d % 2 == 1 {
+            0.0
+        } else {
+            2.0 / f64::from(d + 1)
+        }
+    }
+
+    #[test]
+    fn kronrod_pairs_integrate_their_polynomial_degrees_exactly() {
+        // K15 exact to degree 22 (3·7 + 1), G7 to 13; K7 to 10 (11 by symmetry), G3 to 5
+        // (Kronrod 1965). Checked on x^d over [−1, 1] with the map x = u (u ∈ [0, 1] each
+        // side would hide the odd degrees).
+        let mut count = 0usize;
+        for d in 0..=22 {
+            let mut f = Counted {
+                depth: |x: f64| x.powi(d),
+                calls: 0,
+            };
+            let q = f.panel(Map::Linear { sign: 1.0 }, Rule::Gk15, -1.0, 1.0);
+            count = f.calls;
+            assert!((q.value - moment(d)).abs() <= 1e-15, "K15 degree {d}");
+            if d <= 13 {
+                assert!(q.error <= 2e-15, "G7 degree {d}: {}", q.error);
+            }
+            let q7 = f.panel(Map::Linear { sign: 1.0 }, Rule::Gk7, -1.0, 1.0);
+            if d <= 11 {
+                assert!((q7.value - moment(d)).abs() <= 1e-15, "K7 degree {d}");
+            }
+            if d <= 5 {
+                assert!(q7.error <= 2e-15, "G3 degree {d}");
+            }
+        }
+        assert_eq!(count, 15);
+        // and not beyond
+        let mut f = Counted {
+            depth: |x: f64| x.powi(24),
+            calls: 0,
+        };
+        let q = f.panel(Map::Linear { sign: 1.0 }, Rule::Gk15, -1.0, 1.0);
+        assert!((q.value - moment(24)).abs() > 1e-10);
+    }
+
+    #[test]
+    fn gauss_legendre_is_exact_to_degree_2n_minus_1() {
+        for n in [1usize, 2, 4, 7, 20, 24] {
+            let (x, w) = gauss_legendre(n);
+            assert!(x.windows(2).all(|p| p[0] < p[1]));
+            for d in 0..(2 * n as i32) {
+                let q: f64 = x.iter().zip(&w).map(|(xi, wi)| wi * xi.powi(d)).sum();
+                assert!((q - moment(d)).abs() <= 2e-15, "n={n} d={d}: {q}");
+            }
+        }
+    }
+
+    #[test]
+    fn tail_formula_matches_direct_integration() {
+        // ∫_X^∞ D_sat (1 − e^{−τ X²/x²}) dx by Simpson in y = X/x on (0, 1].
+        for &tau in &[1e-9f64, 1e-4, 0.05, 1.0, 7.0, 80.0] {
+            let (x_cut, d_sat) = (3.0, 0.8);
+            let n = 20_000;
+            let h = 1.0 / n as f64;
+            let g = |y: f64| {
+                if y == 0.0 {
+                    tau
+                } else {
+                    -(-tau * y * y).exp_m1() / (y * y)
+                }
+            };
+            let mut s = g(0.0) + g(1.0);
+            for i in 1..n {
+                s += g(i as f64 * h) * if i % 2 == 1 { 4.0 } else { 2.0 };
+            }
+            let direct = d_sat * x_cut * s * h / 3.0;
+            let d_x = d_sat * -(-tau).exp_m1();
+            let formula = lorentz_wing_tail(d_x, x_cut, tau);
+            assert!(
+                rel(formula, direct) <= 1e-12,
+                "τ={tau}: {formula} vs {direct}"
+            );
+        }
+        // the saturated limit: ∫_0^∞ (1 − e^{−A/x²}) dx = √(πA) is the tail from X → 0
+        let a: f64 = 4.0;
+        let x_cut: f64 = 1e-4;
+        let d_x = -(-a / (x_cut * x_cut)).exp_m1();
+        let t = lorentz_wing_tail(d_x, x_cut, a / (x_cut * x_cut));
+        assert!(rel(t, (std::f64::consts::PI * a).sqrt() - x_cut) <= 1e-12);
+    }
+
+    #[test]
+    fn invalid_scales_are_refused() {
+        assert_eq!(
+            LineScale::doppler(0.0, 1.0),
+            Err(InvalidLineScale::Core(0.0))
+        );
+        assert!(LineScale::doppler(1.0, -1.0).is_err());
+        assert!(LineScale::doppler(f64::NAN, 1.0).is_err());
+        assert!(LineScale::voigt(1.0, 1.0, -0.1).is_err());
+        assert!(
+            LineScale::doppler(1.0, 1.0)
+                .unwrap()
+                .with_wing(f64::INFINITY)
+                .is_err()
+        );
+        let zero_wing = LineScale::voigt(1.0, 1.0, 0.0).unwrap();
+        assert_eq!(zero_wing.wing(), None);
+        assert!(!InvalidLineScale::Core(0.0).to_string().is_empty());
+    }
+
+    #[test]
+    fn voigt_wing_coefficient_matches_the_asymptote() {
+        // A = τ₀ a s²/(√π H(a,0)); for a = 1, H(1,0) = erfcx(1) = 0.4275835761558070
+        // (scipy.special.erfcx, computed).
+        let sc = LineScale::voigt(2.0, 10.0, 1.0).unwrap();
+        let want = 10.0 * 1.0 * 4.0 / (std::f64::consts::PI.sqrt() * 0.427_583_576_155_807);
+        assert!(rel(sc.wing().unwrap(), want) <= 1e-14);
+    }
+
+    /// Intervals of the brute-force Simpson reference.
+    const BRUTE_INTERVALS: usize = 200_000;
+
+    /// (mean evaluations, worst relative error) over a family.
+    fn summary(rows: &[(usize, f64)]) -> (f64, f64) {
+        let mean = rows.iter().map(|r| r.0 as f64).sum::<f64>() / rows.len() as f64;
+        let worst = rows.iter().map(|r| r.1).fold(0.0, f64::max);
+        (mean, worst)
+    }
+
+    fn doppler_depth(tau0: f64) -> impl Fn(f64) -> f64 {
+        move |x: f64| -(-tau0 * (-x * x).exp()).exp_m1()
+    }
+
+    #[test]
+    fn doppler_lines_match_brute_force() {
+        let mut rows = Vec::new();
+        for i in 0..=22 {
+            let tau0 = 10f64.powf(-3.0 + 0.5 * i as f64);
+            let scale = LineScale::doppler(1.0, tau0).unwrap();
+            let got = integrate_line(doppler_depth(tau0), &scale, 1e-4);
+            assert!(got.converged);
+            let x_max = (tau0.max(1.0) * 1e18).ln().sqrt();
+            let reference = brute_force_line(doppler_depth(tau0), &scale, x_max, BRUTE_INTERVALS);
+            let err = rel(got.value, reference);
+            assert!(
+                err <= 1e-4,
+                "τ₀={tau0:e}: {} vs {reference}, {err:e}",
+                got.value
+            );
+            // the integrator's own error estimate is honest
+            assert!((got.value - reference).abs() <= got.error);
+            rows.push((got.evaluations, err));
+        }
+        let (mean, worst) = summary(&rows);
+        eprintln!("Doppler lines: mean {mean:.1} evaluations, worst error {worst:.1e}");
+        assert!(mean <= 64.0);
+    }
+
+    /// Voigt function H(a, x) = (a/π) ∫ e^{−y²}/((x − y)² + a²) dy by direct numerical
+    /// convolution, slow and independent of any library Voigt routine:
+    /// - |x| ≥ 10: the Lorentzian is smooth over the Gaussian's support |y| ≤ 6.5, so a
+    ///   64-point Gauss–Legendre rule on [−6.5, 6.5] converges to rounding;
+    /// - |x| < 10: y = x + a sinh σ turns the Lorentzian into 1/cosh σ,
+    ///   H = (1/π) ∫ e^{−(x + a sinh σ)²}/cosh σ dσ, integrated by the trapezoidal rule
+    ///   (exponentially convergent for this analytic integrand) with step 0.02.
+    struct SlowVoigt {
+        a: f64,
+        nodes: (Vec<f64>, Vec<f64>),
+        cache: HashMap<u64, f64>,
+    }
+
+    impl SlowVoigt {
+        fn new(a: f64) -> Self {
+            Self {
+                a,
+                nodes: gauss_legendre(64),
+                cache: HashMap::new(),
+            }
+        }
+
+        fn h(&mut self, x: f64) -> f64 {
+            if let Some(&v) = self.cache.get(&x.to_bits()) {
+                return v;
+            }
+            let a = self.a;
+            let v = if x.abs() >= 10.0 {
+                let half = 6.5;
+                let (nx, nw) = &self.nodes;
+                a / std::f64::consts::PI
+                    * nx.iter()
+                        .zip(nw)
+                        .map(|(&u, &w)| {
+                            let y = half * u;
+                            w * half * (-y * y).exp() / ((x - y) * (x - y) + a * a)
+                        })
+                        .sum::<f64>()
+            } else {
+                let big = ((x.abs() + 6.5) / a).asinh() + 1.0;
+                let h = 0.02;
+                let n = (big / h).ceil() as i64;
+                let mut s = 0.0;
+                for i in -n..=n {
+                    let sig = i as f64 * h;
+                    let z = x + a * sig.sinh();
+                    s += (-z * z).exp() / sig.cosh();
+                }
+                s * h / std::f64::consts::PI
+            };
+            self.cache.insert(x.to_bits(), v);
+            v
+        }
+    }
+
+    #[test]
+    fn slow_voigt_limits() {
+        // H(a, 0) = erfcx(a); far wing a/(√π x²)(1 + (3/2 − a²)/x²) (A&S 7.4.13 asymptote
+        // of the Faddeeva function, from memory: leading terms).
+        for &a in &[1e-3, 0.1, 1.0] {
+            let mut v = SlowVoigt::new(a);
+            assert!(rel(v.h(0.0), erfcx(a)) <= 1e-12, "a={a}");
+            let x: f64 = 300.0;
+            let asym = a / (std::f64::consts::PI.sqrt() * x * x) * (1.0 + (1.5 - a * a) / (x * x));
+            assert!(rel(v.h(x), asym) <= 1e-8, "a={a}: {} vs {asym}", v.h(x));
+            // continuity across the switch at |x| = 10
+            let below = v.h(10.0 - 1e-9);
+            let above = v.h(10.0);
+            assert!(rel(below, above) <= 1e-9, "a={a}");
+        }
+    }
+
+    #[test]
+    fn voigt_lines_match_brute_force() {
+        let mut rows = Vec::new();
+        for &a in &[1e-3, 1e-2, 0.1, 1.0] {
+            let mut v = SlowVoigt::new(a);
+            let h0 = v.h(0.0);
+            // one brute-force grid for every τ₀ of this a (so the slow profile is cached):
+            // out to where τ of the strongest line is 10⁻⁸.
+            let a_max = LineScale::voigt(1.0, 1e6, a).unwrap().wing().unwrap();
+            let x_max = (a_max / 1e-8).sqrt().max(1e4);
+            for i in 0..=16 {
+                let tau0 = 10f64.powf(-2.0 + 0.5 * i as f64);
+                let scale = LineScale::voigt(1.0, tau0, a).unwrap();
+                let got = integrate_line(|x| -(-tau0 * v.h(x) / h0).exp_m1(), &scale, 1e-4);
+                assert!(got.converged);
+                let reference = brute_force_line(
+                    |x| -(-tau0 * v.h(x) / h0).exp_m1(),
+                    &scale,
+                    x_max,
+                    BRUTE_INTERVALS,
+                );
+                let err = rel(got.value, reference);
+                assert!(
+                    err <= 1e-4,
+                    "a={a} τ₀={tau0:e}: {} vs {reference}",
+                    got.value
+                );
+                assert!(
+                    (got.value - reference).abs() <= got.error,
+                    "a={a} τ₀={tau0:e}"
+                );
+                rows.push((got.evaluations, err));
+            }
+            if a <= 1e-3 {
+                // the reference itself has converged: halving its step changes < 1e-9
+                let tau0 = 1e6;
+                let scale = LineScale::voigt(1.0, tau0, a).unwrap();
+                let fine = brute_force_line(
+                    |x| -(-tau0 * v.h(x) / h0).exp_m1(),
+                    &scale,
+                    x_max,
+                    BRUTE_INTERVALS,
+                );
+                let coarse = brute_force_line(
+                    |x| -(-tau0 * v.h(x) / h0).exp_m1(),
+                    &scale,
+                    x_max,
+                    BRUTE_INTERVALS / 2,
+                );
+                assert!(rel(coarse, fine) <= 1e-9, "{coarse} vs {fine}");
+            }
+        }
+        let (mean, worst) = summary(&rows);
+        eprintln!("Voigt lines: mean {mean:.1} evaluations, worst error {worst:.1e}");
+        assert!(mean <= 64.0);
+    }
+
+    #[test]
+    fn doppler_lines_match_the_growth_function() {
+        let mut worst: f64 = 0.0;
+        for i in 0..=22 {
+            let tau0 = 10f64.powf(-3.0 + 0.5 * i as f64);
+            let scale = LineScale::doppler(1.0, tau0).unwrap();
+            let got = integrate_line(doppler_depth(tau0), &scale, 1e-4);
+            let r = rel(got.value, crate::transfer::growth::doppler_growth(tau0));
+            worst = worst.max(r);
+            assert!(r <= 1e-4, "τ₀={tau0:e}: rel {r:e}");
+        }
+        eprintln!("Doppler lines vs F(τ₀): worst {worst:.1e}");
+    }
+
+    /// An asymmetric blend with a damping wing: a Doppler core, a weaker shifted and narrower
+    /// component, and a Lorentzian A/(x² + 1).
+    fn blend_tau(tau0: f64, a_coef: f64) -> impl Fn(f64) -> f64 {
+        move |x: f64| {
+            let y = (x - 1.5) / 0.8;
+            tau0 * ((-x * x).exp() + 0.4 * (-y * y).exp()) + a_coef / (x * x + 1.0)
+        }
+    }
+
+    /// A boxed depth law.
+    type Depth<'a> = Box<dyn Fn(f64) -> f64 + 'a>;
+
+    #[test]
+    fn robust_to_wrong_scales_asymmetry_emission_and_saturation_law() {
+        use crate::transfer::slab::emergent_flux;
+        let mut rows = Vec::new();
+        for &tau0 in &[1e-2, 1.0, 1e2, 1e4, 1e6] {
+            let a_coef = 1e-3 * tau0;
+            let tau = blend_tau(tau0, a_coef);
+            // three depth laws: screen absorption, a slab seen in flux over a continuum
+            // (S/I_bg = 0.3, τ_c = 0.5), and an emission line (negative depth)
+            let f_c = emergent_flux(0.5, 0.3, 1.0);
+            let laws: [(&str, Depth); 3] = [
+                ("screen", Box::new(|x| -(-tau(x)).exp_m1())),
+                (
+                    "slab",
+                    Box::new(|x| 1.0 - emergent_flux(0.5 + tau(x), 0.3, 1.0) / f_c),
+                ),
+                ("emission", Box::new(|x| 0.5 * (-tau(x)).exp_m1())),
+            ];
+            let right = LineScale::doppler(1.0, tau0 + a_coef)
+                .unwrap()
+                .with_wing(a_coef)
+                .unwrap();
+            let hints = [
+                ("right", right),
+                (
+                    "τ₀×10",
+                    LineScale::doppler(1.0, 10.0 * tau0)
+                        .unwrap()
+                        .with_wing(a_coef)
+                        .unwrap(),
+                ),
+                (
+                    "τ₀×0.1",
+                    LineScale::doppler(1.0, 0.1 * tau0)
+                        .unwrap()
+                        .with_wing(a_coef)
+                        .unwrap(),
+                ),
+                (
+                    "no τ₀",
+                    LineScale::doppler(1.0, 0.0)
+                        .unwrap()
+                        .with_wing(a_coef)
+                        .unwrap(),
+                ),
+                (
+                    "A×3",
+                    LineScale::doppler(1.0, tau0)
+                        .unwrap()
+                        .with_wing(3.0 * a_coef)
+                        .unwrap(),
+                ),
+                (
+                    "A×0.3",
+                    LineScale::doppler(1.0, tau0)
+                        .unwrap()
+                        .with_wing(0.3 * a_coef)
+                        .unwrap(),
+                ),
+            ];
+            let x_max = (a_coef / 1e-9).sqrt().max(1e4);
+            for (law, depth) in &laws {
+                let reference = brute_force_line(depth, &right, x_max, BRUTE_INTERVALS);
+                for (hint, scale) in &hints {
+                    let got = integrate_line(depth, scale, 1e-4);
+                    let err = rel(got.value, reference);
+                    assert!(got.converged, "{law} {hint} τ₀={tau0:e}");
+                    assert!(err <= 1e-4, "{law} {hint} τ₀={tau0:e}: rel {err:e}");
+                    rows.push((got.evaluations, err));
+                }
+            }
+        }
+        let (mean, worst) = summary(&rows);
+        eprintln!(
+            "blends, wrong scales, three depth laws: mean {mean:.1} evaluations, worst error {worst:.1e}"
+        );
+    }
+
+    #[test]
+    fn degenerate_inputs() {
+        // zero depth: converges at once with W = 0
+        let scale = LineScale::voigt(1.0, 1.0, 0.01).unwrap();
+        let got = integrate_line(|_| 0.0, &scale, 1e-4);
+        assert!(got.converged && got.value.abs() <= 0.0);
+        // a tolerance below the floor is raised, NaN means the default
+        let tau0 = 10.0;
+        let d = LineScale::doppler(1.0, tau0).unwrap();
+        let tight = integrate_line(doppler_depth(tau0), &d, 0.0);
+        assert!(tight.converged);
+        assert!(rel(tight.value, crate::transfer::growth::doppler_growth(tau0)) <= 1e-12);
+        let default = integrate_line(doppler_depth(tau0), &d, f64::NAN);
+        assert!(default.converged && default.error <= DEFAULT_RTOL * default.value);
+        // a depth that never decays exhausts the budget and says so
+        let flat = integrate_line(|_| 1.0, &d, 1e-4);
+        assert!(!flat.converged && flat.evaluations >= MAX_EVALUATIONS);
+        assert!(flat.value.is_finite() && flat.error.is_finite());
+    }
+}
