@@ -9,5 +9,6 @@ pub mod atoms;
 pub mod constants;
 pub mod eos;
 pub mod error;
+pub mod grid;
 
 pub use error::{Error, Result};

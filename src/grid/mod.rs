@@ -1,0 +1,3 @@
+//! Grid engine: spec, plan, parallel runner, HDF5 store, merge.
+
+pub mod store;
