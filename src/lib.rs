@@ -9,6 +9,9 @@ pub mod atoms;
 pub mod constants;
 pub mod eos;
 pub mod error;
+pub mod formation;
 pub mod grid;
+pub mod opacity;
+pub mod transfer;
 
 pub use error::{Error, Result};

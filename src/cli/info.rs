@@ -145,3 +145,56 @@ pub fn atoms(a: AtomsArgs) -> Result<(), Failure> {
     }
     super::emit(&o)
 }
+
+#[derive(Args)]
+#[command(
+    after_help = "Examples:\n  linegrid lines --family Balmer\n  linegrid lines --species \"Ca II\" --json\n  linegrid lines --min-wavelength 400 --max-wavelength 700"
+)]
+pub struct LinesArgs {
+    #[command(flatten)]
+    select: super::slab::LineArgs,
+    /// Print JSON
+    #[arg(long)]
+    json: bool,
+}
+
+pub fn lines(a: LinesArgs) -> Result<(), Failure> {
+    let cat = a.select.catalogue()?;
+    let lines = a.select.select(&cat)?;
+    if a.json {
+        return print_json(&serde_json::to_value(&lines).map_err(Failure::failed)?);
+    }
+    let mut o = String::new();
+    outln!(
+        o,
+        "{:<16} {:<7} {:>12} {:>4} {:>12} {:>12} {:>8}  family / source",
+        "label",
+        "species",
+        "lambda/A",
+        "",
+        "E_low/cm-1",
+        "E_up/cm-1",
+        "log gf"
+    );
+    for l in &lines {
+        outln!(
+            o,
+            "{:<16} {:<7} {:>12.3} {:>4} {:>12.2} {:>12.2} {:>8.3}  {} / {}",
+            l.label,
+            l.species,
+            l.wavelength() * 1e8,
+            if l.wavelength_air.is_some() {
+                "air"
+            } else {
+                "vac"
+            },
+            l.lower_cm,
+            l.upper_cm,
+            l.log_gf,
+            l.family,
+            l.source
+        );
+    }
+    outln!(o, "{} lines", lines.len());
+    super::emit(&o)
+}

@@ -11,8 +11,11 @@ macro_rules! outln {
     }};
 }
 
+mod build;
 mod info;
+mod slab;
 mod state;
+mod voigt;
 
 use std::process::ExitCode;
 
@@ -44,6 +47,22 @@ enum Command {
     Constants(info::ConstantsArgs),
     /// List the curated atomic data: elements, abundances, species, ionisation energies, provenance
     Atoms(info::AtomsArgs),
+    /// List the line catalogue (hydrogen and He II series, curated lines, user lines)
+    Lines(info::LinesArgs),
+    /// One slab: state, continuum opacity, and the strength of each selected line
+    Slab(slab::SlabArgs),
+    /// Curve of growth of one line: equivalent width against column, with the asymptotes
+    Growth(slab::GrowthArgs),
+    /// Build a grid file from a TOML spec (parallel, resumable, shardable)
+    Build(build::BuildArgs),
+    /// Describe a grid file: axes, lines, physics, provenance, completeness, status counts
+    Describe(build::DescribeArgs),
+    /// Merge shard files of one spec into a complete grid file
+    Merge(build::MergeArgs),
+    /// Write a Slurm job-array script (one shard per task) and a dependent merge job
+    Shards(build::ShardsArgs),
+    /// Evaluate the Voigt function H(a, v) for `a v` pairs from standard input or a file (CSV out)
+    Voigt(voigt::VoigtArgs),
 }
 
 /// A failure with the exit code it maps to.
@@ -90,6 +109,14 @@ pub fn run() -> ExitCode {
         Command::State(a) => state::run(a),
         Command::Constants(a) => info::constants(a),
         Command::Atoms(a) => info::atoms(a),
+        Command::Lines(a) => info::lines(a),
+        Command::Slab(a) => slab::slab(a),
+        Command::Growth(a) => slab::growth(a),
+        Command::Build(a) => build::build(a),
+        Command::Describe(a) => build::describe(a),
+        Command::Merge(a) => build::merge(a),
+        Command::Shards(a) => build::shards(a),
+        Command::Voigt(a) => voigt::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

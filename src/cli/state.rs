@@ -133,7 +133,6 @@ impl PointArgs {
     }
 
     /// Solve the point; bad input maps to exit 2, non-convergence to exit 1.
-    #[allow(dead_code)] // used by the slab verbs (next commit)
     pub fn solve(&self, levels: u32) -> Result<(StateRequest, State), Failure> {
         let req = self.request(levels)?;
         match eos::solve_with(AtomicData::embedded(), &req) {

@@ -1862,6 +1862,33 @@ impl GridFile {
         attr_as_text(&self.file, name)
     }
 
+    /// The layout this file was created with (for writing a file of the same shape, e.g.
+    /// when merging shards): structure, the provenance attributes and `compression`.
+    pub fn layout(&self, compression: u8) -> Result<Layout> {
+        let mut provenance = Vec::new();
+        for key in REQUIRED_PROVENANCE.iter().chain(["tool_version"].iter()) {
+            let v = self
+                .attribute(key)
+                .ok_or_else(|| not_grid(&self.path, "a provenance attribute is missing"))?;
+            provenance.push((key.to_string(), v));
+        }
+        Ok(Layout {
+            title: self.structure.title.clone(),
+            axes: self.structure.axes.clone(),
+            lines: self.structure.lines.clone(),
+            datasets: self.structure.datasets.clone(),
+            compression,
+            provenance,
+            status_flags: self
+                .structure
+                .status_flags
+                .iter()
+                .filter(|(c, _)| *c != STATUS_CONVERGED && *c != STATUS_NOT_COMPUTED)
+                .cloned()
+                .collect(),
+        })
+    }
+
     /// Whether the writer finished (`complete = 1`).
     pub fn is_complete(&self) -> bool {
         read_int_attr(&self.file, "complete") == Some(1)

@@ -631,6 +631,107 @@ def check_state_hydrogen(runner: Runner, report: Report) -> None:
 
 
 # --------------------------------------------------------------------------
+# Family 4: the Voigt function H(a, v)
+# --------------------------------------------------------------------------
+
+# Brief: maximum relative error of H against scipy.special.wofz over the
+# domain a in [1e-5, 1e2], |v| <= 1e4.
+TOL_VOIGT = 1e-6
+VOIGT_SEED = 20240601
+
+
+def voigt_points():
+    """(a, v) arrays: a 200 x 200 grid (a log-spaced over [1e-5, 1e2]; v = 0
+    and log-spaced over [1e-3, 1e4]), 20000 random points over the same
+    ranges with random signs of v, and 20000 random points in the line core
+    |v| <= 10, a <= 10, where the binary's evaluation regions meet (fixed
+    seed)."""
+    import numpy as np
+
+    a_grid = np.geomspace(1e-5, 1e2, 200)
+    v_grid = np.concatenate([[0.0], np.geomspace(1e-3, 1e4, 199)])
+    a, v = (x.ravel() for x in np.meshgrid(a_grid, v_grid, indexing="ij"))
+    rng = np.random.default_rng(VOIGT_SEED)
+    n = 20000
+    a_wide = 10.0 ** rng.uniform(-5.0, 2.0, n)
+    v_wide = rng.choice([-1.0, 1.0], n) * 10.0 ** rng.uniform(-3.0, 4.0, n)
+    a_core = 10.0 ** rng.uniform(-5.0, 1.0, n)
+    v_core = rng.uniform(-10.0, 10.0, n)
+    return np.concatenate([a, a_wide, a_core]), np.concatenate([v, v_wide, v_core])
+
+
+def run_with_stdin(runner: Runner, args, text: str) -> str:
+    """Run the binary with `text` on stdin; its stdout, or CommandError."""
+    cmd = [runner.binary, *args]
+    shown = " ".join(cmd) + " < (input)"
+    try:
+        proc = subprocess.run(
+            cmd, input=text, capture_output=True, text=True, timeout=runner.timeout
+        )
+    except FileNotFoundError:
+        raise CommandError(f"`{shown}`: binary not found") from None
+    except OSError as exc:
+        raise CommandError(f"`{shown}`: cannot execute: {exc}") from None
+    except subprocess.TimeoutExpired:
+        raise CommandError(f"`{shown}`: timed out after {runner.timeout:g} s") from None
+    if proc.returncode != 0:
+        raise CommandError(
+            f"`{shown}` exited {proc.returncode}; stderr: {_clip(proc.stderr) or '(empty)'}"
+        )
+    return proc.stdout
+
+
+def check_voigt(runner: Runner, report: Report) -> None:
+    """`linegrid voigt` (pairs `a v` on stdin, CSV `a,v,H` out) against the
+    real part of scipy.special.wofz, w(z) = exp(-z^2) erfc(-iz), H(a, v) =
+    Re w(v + ia)."""
+    family = "voigt"
+    try:
+        import numpy as np
+        from scipy.special import wofz
+    except ImportError as exc:
+        report.fail(f"{family}.reference", f"numpy/scipy not importable: {exc}")
+        return
+    a, v = voigt_points()
+    text = "".join(f"{float(x)!r} {float(y)!r}\n" for x, y in zip(a, v))
+    try:
+        out = run_with_stdin(runner, ["voigt"], text)
+    except CommandError as exc:
+        report.fail(f"{family}.command", str(exc))
+        return
+    rows = [line.split(",") for line in out.splitlines() if line.strip()]
+    try:
+        got = np.array(rows, dtype=float)
+    except ValueError as exc:
+        report.fail(f"{family}.schema", f"output is not CSV a,v,H: {exc}; first line {out[:120]!r}")
+        return
+    if got.ndim != 2 or got.shape != (len(a), 3):
+        report.fail(
+            f"{family}.schema",
+            f"expected {len(a)} lines a,v,H, got array of shape {got.shape}",
+        )
+        return
+    echoed = np.array_equal(got[:, 0], a) and np.array_equal(got[:, 1], v)
+    # reference: scipy.special.wofz (the Faddeeva package of S. G. Johnson),
+    # H(a, v) = Re w(v + i a).
+    ref = wofz(v + 1j * a).real
+    h = got[:, 2]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        err = np.where(ref != 0.0, np.abs(h - ref) / np.abs(ref), np.abs(h - ref))
+    err = np.where(np.isfinite(err), err, np.inf)
+    k = int(np.argmax(err))
+    worst = float(err[k])
+    report.record(
+        worst <= TOL_VOIGT and echoed,
+        f"{family}.wofz",
+        f"H(a, v) at {len(a)} points (a in [1e-5, 1e2], |v| <= 1e4): max relative error "
+        f"{worst:.2e} at a={a[k]:.17g}, v={v[k]:.17g} (H {h[k]:.17g} vs {ref[k]:.17g}); "
+        f"tol {TOL_VOIGT:g}; reference: scipy.special.wofz (Faddeeva package, S. G. Johnson)"
+        + ("" if echoed else "; the a,v columns do not echo the input exactly"),
+    )
+
+
+# --------------------------------------------------------------------------
 # Driver
 # --------------------------------------------------------------------------
 
@@ -639,6 +740,7 @@ FAMILIES = {
     "constants": check_constants,
     "atoms": check_atoms,
     "state": check_state_hydrogen,
+    "voigt": check_voigt,
 }
 
 

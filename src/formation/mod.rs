@@ -1,0 +1,490 @@
+//! Line formation in a homogeneous slab: lower-level populations from the state, line and
+//! continuum opacity, the emergent spectrum across each line, and line strengths.
+//!
+//! Model: a plane-parallel slab of thickness L, uniform in temperature and composition, seen
+//! in flux (or in intensity at direction cosine μ) against an isotropic Planck background of
+//! temperature T_bg, or against nothing (pure emission). In LTE the source function of line
+//! and continuum is B_ν(T); continuum scattering is treated as absorption (a lite choice).
+//! The continuum opacity is evaluated at line centre and held constant across the line.
+//!
+//! Profiles are evaluated at v = Δλ/Δλ_D (linear in wavelength, symmetric about the line);
+//! the frequency asymmetry this drops matters only where |Δλ| approaches λ₀, where a
+//! Lorentz wing has no meaning anyway.
+//!
+//! Line strengths (wavelength offsets x = λ − λ₀ in cm internally, reported in Å):
+//! - with a background: the equivalent width W_λ = ∫ (1 − F/F_c) dλ (negative for a line in
+//!   emission), the central depth 1 − F(λ₀)/F_c and the FWHM of the depth profile;
+//! - without: the integrated line emission ∫ (F_λ − F_λ,c) dλ in erg s⁻¹ cm⁻² (flux) or
+//!   erg s⁻¹ cm⁻² sr⁻¹ (intensity), the peak contrast F(λ₀)/F_c − 1 and its FWHM.
+//!
+//! Hydrogen-like lines use the occupation probabilities: the lower-level population carries
+//! w_l, and the line opacity the factor w_u/w_l (the chance that the upper level survives the
+//! plasma's fields), so high series members fade into the continuum. Their profile is the
+//! linear Stark effect in the quasi-static approximation ([`crate::opacity::stark`]): the
+//! shifted Stark components follow the Holtsmark distribution of the ion field (ion density
+//! taken equal to n_e) convolved with the Doppler core, and the unshifted components keep a
+//! Voigt profile with the radiative and van der Waals widths. Electron-impact broadening of
+//! hydrogen lines is not included (the cores of lines with unshifted components, e.g. Hα,
+//! come out too narrow at high density).
+
+pub mod growth;
+
+use crate::atoms::AtomicData;
+use crate::atoms::lines::Line;
+use crate::constants::{AMU, C, HC_OVER_K, PI_E2_OVER_MC};
+use crate::eos::State;
+use crate::eos::occupation::OccupationModel;
+use crate::opacity::broadening::{self, BroadeningGas, Widths};
+use crate::opacity::continuum::{self, Continuum, ContinuumGas};
+use crate::opacity::stark::StarkProfile;
+use crate::opacity::voigt::voigt_h;
+use crate::transfer::{quadrature, slab as rt, special};
+
+/// How big the slab is.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Geometry {
+    /// Geometrical thickness, cm.
+    Thickness(f64),
+    /// Column of hydrogen nuclei, cm⁻².
+    HydrogenColumn(f64),
+}
+
+/// What lies behind the slab.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Background {
+    /// An isotropic Planck source of this temperature, K.
+    Planck(f64),
+    /// Nothing: the slab is seen in emission.
+    None,
+}
+
+/// Whether strengths are measured in flux or in intensity at a direction cosine.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum View {
+    /// Emergent flux (hemisphere-integrated).
+    Flux,
+    /// Intensity at direction cosine μ ∈ (0, 1].
+    Intensity(f64),
+}
+
+/// Slab parameters.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SlabOptions {
+    /// Size.
+    pub geometry: Geometry,
+    /// Background.
+    pub background: Background,
+    /// Microturbulent velocity, cm s⁻¹.
+    pub microturbulence: f64,
+    /// Flux or intensity.
+    pub view: View,
+    /// Include continuum opacity (H⁻, H bound–free and free–free, Thomson, Rayleigh).
+    pub continuum: bool,
+}
+
+/// Strength of one line.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct LineStrength {
+    /// Line label.
+    pub label: String,
+    /// Customary wavelength (air above 200 nm), Å.
+    pub wavelength_angstrom: f64,
+    /// Lower-level column density n_l L (with occupation probability), cm⁻².
+    pub lower_column: f64,
+    /// Line-centre optical depth of the line alone (normal to the slab).
+    pub tau0: f64,
+    /// Continuum optical depth at line centre.
+    pub continuum_tau: f64,
+    /// Equivalent width in Å (absorption; with a background), else `None`.
+    pub equivalent_width: Option<f64>,
+    /// Integrated line emission (no background), erg s⁻¹ cm⁻² (sr⁻¹ in intensity).
+    pub emission: Option<f64>,
+    /// Central depth 1 − F(λ₀)/F_c (with a background), or peak contrast F(λ₀)/F_c − 1.
+    pub central_depth: f64,
+    /// Full width at half maximum of the depth (or emission) profile, Å.
+    pub fwhm_angstrom: f64,
+    /// Profile evaluations used by the integral.
+    pub evaluations: usize,
+    /// The widths used.
+    pub widths: Widths,
+    /// Voigt damping parameter.
+    pub damping: f64,
+}
+
+/// Errors of slab computations.
+#[derive(Debug, thiserror::Error)]
+pub enum SlabError {
+    /// Non-physical slab parameters.
+    #[error("invalid {field} = {value}: {expected}")]
+    Invalid {
+        /// The option.
+        field: &'static str,
+        /// Its value.
+        value: f64,
+        /// The accepted range.
+        expected: &'static str,
+    },
+    /// The line's species is not in the state (not in the table or not in the composition).
+    #[error("line '{label}': species '{species}' is not present in this composition")]
+    SpeciesAbsent {
+        /// Line label.
+        label: String,
+        /// Species.
+        species: String,
+    },
+}
+
+impl SlabOptions {
+    /// Check the parameters.
+    pub fn validate(&self) -> Result<(), SlabError> {
+        let (field, v) = match self.geometry {
+            Geometry::Thickness(v) => ("--thickness", v),
+            Geometry::HydrogenColumn(v) => ("--hydrogen-column", v),
+        };
+        if !(v.is_finite() && v > 0.0) {
+            return Err(SlabError::Invalid {
+                field,
+                value: v,
+                expected: "must be a finite positive number",
+            });
+        }
+        if let Background::Planck(t) = self.background
+            && !(t.is_finite() && t > 0.0)
+        {
+            return Err(SlabError::Invalid {
+                field: "--background-temperature",
+                value: t,
+                expected: "must be a finite positive number of kelvin",
+            });
+        }
+        if let View::Intensity(mu) = self.view
+            && !(mu > 0.0 && mu <= 1.0)
+        {
+            return Err(SlabError::Invalid {
+                field: "--mu",
+                value: mu,
+                expected: "the direction cosine must lie in (0, 1]",
+            });
+        }
+        if !(self.microturbulence.is_finite()
+            && self.microturbulence >= 0.0
+            && self.microturbulence < 1e8)
+        {
+            return Err(SlabError::Invalid {
+                field: "--microturbulence",
+                value: self.microturbulence / 1e5,
+                expected: "must be between 0 and 1000 km/s",
+            });
+        }
+        Ok(())
+    }
+
+    /// Slab thickness for a state, cm.
+    pub fn thickness(&self, state: &State) -> f64 {
+        match self.geometry {
+            Geometry::Thickness(l) => l,
+            Geometry::HydrogenColumn(n) => n / state.hydrogen_density,
+        }
+    }
+}
+
+/// The gas description the continuum needs, from a state.
+pub fn continuum_gas(data: &AtomicData, state: &State) -> ContinuumGas {
+    let idx = |n: &str| {
+        data.species_index(n)
+            .map(|k| state.species[k].density)
+            .unwrap_or(0.0)
+    };
+    let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
+    let levels: Vec<f64> = state.hydrogen_levels.iter().map(|l| l.population).collect();
+    ContinuumGas {
+        temperature: state.temperature,
+        electron_density: state.electron_density,
+        h_minus: idx("H-"),
+        h_ground: levels.first().copied().unwrap_or(0.0),
+        h_neutral: idx("H I"),
+        h_binding_cm: (1..=levels.len() as u32)
+            .map(|n| h.binding_wavenumber(n))
+            .collect(),
+        h_levels: levels,
+        ion_charge_squared: state.perturbers.ion_charge_squared_density,
+    }
+}
+
+/// Everything about one line in one slab that does not depend on the wavelength offset.
+#[derive(Debug, Clone)]
+pub struct LineSetup {
+    /// Vacuum wavelength, cm.
+    pub lambda0: f64,
+    /// Line-centre frequency, Hz.
+    pub nu0: f64,
+    /// Widths.
+    pub widths: Widths,
+    /// Damping parameter a.
+    pub a: f64,
+    /// Line opacity per unit normalised profile H(a, v): κ_l(v) = kappa_scale × H(a, v), cm⁻¹.
+    pub kappa_scale: f64,
+    /// Continuum opacity at line centre (absorption + scattering), cm⁻¹.
+    pub kappa_cont: f64,
+    /// Lower-level density with occupation factors, cm⁻³.
+    pub lower_density: f64,
+    /// Slab temperature, K.
+    pub temperature: f64,
+    /// Thickness, cm.
+    pub thickness: f64,
+    /// Quasi-static Stark profile, for hydrogen-like lines.
+    pub stark: Option<StarkProfile>,
+}
+
+/// Compute the wavelength-independent quantities of a line in a slab.
+pub fn setup_line(
+    data: &AtomicData,
+    state: &State,
+    opts: &SlabOptions,
+    line: &Line,
+) -> Result<LineSetup, SlabError> {
+    let absent = || SlabError::SpeciesAbsent {
+        label: line.label.clone(),
+        species: line.species.clone(),
+    };
+    let k = line.species_index.ok_or_else(absent)?;
+    let sp = &data.species[k];
+    if state.abundances[sp.element] <= 0.0 {
+        return Err(absent());
+    }
+    let t = state.temperature;
+    let st = state.species[k];
+    let boltz = (-line.lower_cm * HC_OVER_K / t).exp();
+    let mut lower = st.density * line.g_lower * boltz / st.partition_function;
+    if let (Some(h), Some((lo, up))) = (&sp.hydrogenic, line.shells) {
+        let m = OccupationModel::new(h.z, &state.perturbers);
+        let (wl, wu) = (m.w(lo), m.w(up));
+        // Population carries w_l; the transition carries w_u/w_l.
+        lower *= wl * if wl > 0.0 { wu / wl } else { 0.0 };
+    }
+    let gas = BroadeningGas {
+        temperature: t,
+        electron_density: state.electron_density,
+        neutral_hydrogen: data
+            .species_index("H I")
+            .map_or(0.0, |i| state.species[i].density),
+        microturbulence: opts.microturbulence,
+    };
+    let mass = data.elements[sp.element].mass_amu * AMU;
+    let widths = broadening::widths(
+        line,
+        mass,
+        sp.ionization_ev,
+        sp.charge,
+        sp.hydrogenic.as_ref(),
+        &gas,
+    );
+    let a = widths.damping_parameter();
+    let nu0 = C / line.wavelength_vac;
+    let stim = -(-HC_OVER_K * nu0 / C / t).exp_m1();
+    let kappa_scale = PI_E2_OVER_MC * line.f_value() * lower * stim
+        / (std::f64::consts::PI.sqrt() * widths.doppler_hz);
+    let kappa_cont = if opts.continuum {
+        let c: Continuum = continuum::continuum(line.wavelength_vac, &continuum_gas(data, state));
+        c.total()
+    } else {
+        0.0
+    };
+    let stark = match (&sp.hydrogenic, line.shells) {
+        (Some(h), Some((lo, up))) if lo <= 6 && up <= 30 && widths.doppler_cm > 0.0 => {
+            Some(StarkProfile::new(
+                lo,
+                up,
+                h.z,
+                line.wavelength_vac,
+                state.electron_density,
+                widths.doppler_cm,
+                0.0,
+            ))
+        }
+        _ => None,
+    };
+    Ok(LineSetup {
+        stark,
+        lambda0: line.wavelength_vac,
+        nu0,
+        widths,
+        a,
+        kappa_scale,
+        kappa_cont,
+        lower_density: lower,
+        temperature: t,
+        thickness: opts.thickness(state),
+    })
+}
+
+impl LineSetup {
+    /// Line optical depth (normal) at wavelength offset x (cm).
+    pub fn tau_line(&self, x: f64) -> f64 {
+        // Offsets are linear in wavelength, v = Δλ/Δλ_D, so the profile is symmetric in Δλ and
+        // its damping wings fall exactly as 1/Δλ² (the analytic tail then holds to infinity).
+        let v = x / self.widths.doppler_cm;
+        let h = voigt_h(self.a, v);
+        match &self.stark {
+            None => self.kappa_scale * h * self.thickness,
+            Some(sp) => {
+                // φ_λ = shifted components (Holtsmark ⊗ Doppler) + central weight × Voigt;
+                // `phi` holds the central weight with a pure Gaussian, swapped here.
+                let dl = self.widths.doppler_cm;
+                let sqrt_pi = std::f64::consts::PI.sqrt();
+                let gauss = (-v * v).exp() / (sqrt_pi * dl);
+                let voigt = h / (sqrt_pi * dl);
+                let phi_lambda = sp.phi(x) + sp.central() * (voigt - gauss);
+                // κ_scale H/(√π Δν_D) per unit φ_ν; φ_ν = φ_λ Δλ_D/Δν_D·(1/Δλ_D)… i.e.
+                // φ_ν = φ_λ λ²/c, and κ_scale = (πe²/mc) f n_l stim/(√π Δν_D).
+                let per_phi_nu = self.kappa_scale * sqrt_pi * self.widths.doppler_hz;
+                per_phi_nu * phi_lambda * self.lambda0 * self.lambda0 / C * self.thickness
+            }
+        }
+    }
+
+    /// Coefficient A of the Lorentz wing τ_line ≈ A/x² far from the core (x in cm).
+    pub fn wing_coefficient(&self) -> f64 {
+        // H(a, v) → a/(√π v²), v = Δν/Δν_D, Δν ≈ c x/λ₀².
+        let dnu_per_x = C / (self.lambda0 * self.lambda0);
+        let v_per_x = dnu_per_x / self.widths.doppler_hz;
+        let lorentz = self.kappa_scale * self.thickness * self.a
+            / (std::f64::consts::PI.sqrt() * v_per_x * v_per_x);
+        // Only the unshifted Stark components carry the Lorentz wing.
+        self.stark
+            .as_ref()
+            .map_or(lorentz, |sp| lorentz * sp.central())
+    }
+}
+
+/// The emergent quantity (flux or intensity per unit frequency) for optical depth `tau`,
+/// source `s` and background `i_bg`.
+fn emergent(view: View, tau: f64, s: f64, i_bg: f64) -> f64 {
+    match view {
+        View::Flux => rt::emergent_flux(tau, s, i_bg),
+        View::Intensity(mu) => rt::emergent_intensity(tau, mu, s, i_bg),
+    }
+}
+
+/// Strengths of `lines` in the slab described by `state` and `opts`.
+pub fn line_strengths(
+    data: &AtomicData,
+    state: &State,
+    opts: &SlabOptions,
+    lines: &[&Line],
+) -> Result<Vec<LineStrength>, SlabError> {
+    opts.validate()?;
+    lines
+        .iter()
+        .map(|l| line_strength(data, state, opts, l))
+        .collect()
+}
+
+/// Strength of one line.
+pub fn line_strength(
+    data: &AtomicData,
+    state: &State,
+    opts: &SlabOptions,
+    line: &Line,
+) -> Result<LineStrength, SlabError> {
+    let su = setup_line(data, state, opts, line)?;
+    let t = state.temperature;
+    let tau_c = su.kappa_cont * su.thickness;
+    let s0 = special::planck_nu(su.nu0, t);
+    let bg0 = match opts.background {
+        Background::Planck(tb) => special::planck_nu(su.nu0, tb),
+        Background::None => 0.0,
+    };
+    let fc0 = emergent(opts.view, tau_c, s0, bg0);
+    let absorption = matches!(opts.background, Background::Planck(_));
+    // The integrand as a function of the wavelength offset x (cm).
+    let profile = |x: f64| -> f64 {
+        let lam = su.lambda0 + x;
+        let nu = C / lam;
+        let s = special::planck_nu(nu, t);
+        let bg = match opts.background {
+            Background::Planck(tb) => special::planck_nu(nu, tb),
+            Background::None => 0.0,
+        };
+        let tau = su.tau_line(x);
+        let f = emergent(opts.view, tau + tau_c, s, bg);
+        let fc = emergent(opts.view, tau_c, s, bg);
+        if absorption {
+            if fc > 0.0 { 1.0 - f / fc } else { 0.0 }
+        } else {
+            // F_λ = F_ν c/λ²
+            (f - fc) * C / (lam * lam)
+        }
+    };
+    let tau0 = su.tau_line(0.0);
+    let core = match &su.stark {
+        // The Stark pattern widens the core: use the larger of the two scales.
+        Some(sp) => su.widths.doppler_cm.max(sp.unit_shift()),
+        None => su.widths.doppler_cm,
+    };
+    let scale = quadrature::LineScale::doppler(core, tau0)
+        .and_then(|s| s.with_wing(su.wing_coefficient()))
+        .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
+        .expect("a positive Doppler width");
+    let integral = quadrature::integrate_line(profile, &scale, 5e-5);
+    let centre = profile(0.0);
+    let fwhm = half_width(&profile, centre, su.widths.doppler_cm, 1.0)
+        + half_width(&profile, centre, su.widths.doppler_cm, -1.0);
+    let (equivalent_width, emission, central_depth) = if absorption {
+        (Some(integral.value * 1e8), None, centre)
+    } else {
+        let fc_lambda = fc0 * C / (su.lambda0 * su.lambda0);
+        let contrast = if fc_lambda > 0.0 {
+            centre / fc_lambda
+        } else {
+            f64::INFINITY
+        };
+        (None, Some(integral.value), contrast)
+    };
+    Ok(LineStrength {
+        label: line.label.clone(),
+        wavelength_angstrom: line.wavelength() * 1e8,
+        lower_column: su.lower_density * su.thickness,
+        tau0,
+        continuum_tau: tau_c,
+        equivalent_width,
+        emission,
+        central_depth,
+        fwhm_angstrom: fwhm * 1e8,
+        evaluations: integral.evaluations,
+        widths: su.widths,
+        damping: su.a,
+    })
+}
+
+/// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
+/// central value, by bracketing and bisection to 1e-6 relative.
+fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
+    if centre.abs() < f64::MIN_POSITIVE {
+        return 0.0;
+    }
+    let half = 0.5 * centre;
+    let above = |x: f64| (profile(sign * x) - half) * centre.signum() > 0.0;
+    let (mut lo, mut hi) = (0.0, core.max(1e-16));
+    let mut guard = 0;
+    while above(hi) {
+        lo = hi;
+        hi *= 2.0;
+        guard += 1;
+        if guard > 200 {
+            return f64::INFINITY;
+        }
+    }
+    while hi - lo > 1e-6 * hi {
+        let mid = 0.5 * (lo + hi);
+        if above(mid) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}

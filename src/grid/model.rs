@@ -1,0 +1,205 @@
+//! The physics behind one grid point, for the engine: state → slab → line strengths, as flat
+//! numbers per dataset with a status code. This is the only grid module that knows physics.
+
+use crate::atoms::AtomicData;
+use crate::eos::{self, StateError};
+use crate::formation;
+
+use super::plan::Plan;
+
+/// Status codes stored per point.
+pub mod status {
+    /// Converged.
+    pub const OK: u8 = 0;
+    /// Charge conservation has no root.
+    pub const NO_ROOT: u8 = 1;
+    /// Iteration limit.
+    pub const ITERATION_LIMIT: u8 = 2;
+    /// Implied density out of range.
+    pub const DENSITY_OUT_OF_RANGE: u8 = 3;
+    /// Invalid input at this point (e.g. a parameter combination out of range).
+    pub const INVALID_INPUT: u8 = 4;
+    /// The slab computation failed.
+    pub const SLAB_FAILED: u8 = 5;
+    /// Not computed yet.
+    pub const NOT_COMPUTED: u8 = 255;
+
+    /// (code, meaning) for the file's flag attributes.
+    pub fn meanings() -> Vec<(u8, String)> {
+        vec![
+            (OK, "converged".into()),
+            (NO_ROOT, "no_charge_balance_root".into()),
+            (ITERATION_LIMIT, "iteration_limit".into()),
+            (DENSITY_OUT_OF_RANGE, "implied_density_out_of_range".into()),
+            (INVALID_INPUT, "invalid_input".into()),
+            (SLAB_FAILED, "slab_failed".into()),
+            (NOT_COMPUTED, "not_computed".into()),
+        ]
+    }
+}
+
+/// A dataset the model produces.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Quantity {
+    /// Dataset name.
+    pub name: String,
+    /// Units.
+    pub units: &'static str,
+    /// Description.
+    pub long_name: String,
+    /// One value per line (else one per point).
+    pub per_line: bool,
+}
+
+/// The quantities of a plan: per-line strengths, then per-point state variables and the
+/// ionisation fraction of every species that carries a selected line.
+pub fn quantities(plan: &Plan) -> Vec<Quantity> {
+    let emission = !plan.spec.has_background;
+    let q = |name: &str, units, long_name: &str, per_line| Quantity {
+        name: name.into(),
+        units,
+        long_name: long_name.into(),
+        per_line,
+    };
+    let mut v = vec![
+        if emission {
+            q(
+                "line_emission",
+                "erg s-1 cm-2",
+                "integrated line emission above the continuum",
+                true,
+            )
+        } else {
+            q(
+                "equivalent_width",
+                "angstrom",
+                "equivalent width (positive in absorption)",
+                true,
+            )
+        },
+        q(
+            "central_depth",
+            "1",
+            "central depth 1 - F/Fc (emission: peak contrast F/Fc - 1)",
+            true,
+        ),
+        q(
+            "tau0",
+            "1",
+            "line-centre optical depth of the line alone",
+            true,
+        ),
+        q(
+            "fwhm",
+            "angstrom",
+            "full width at half maximum of the line profile",
+            true,
+        ),
+        q("lower_column", "cm-2", "lower-level column density", true),
+        q("electron_density", "cm-3", "electron number density", false),
+        q("gas_pressure", "dyn cm-2", "gas pressure", false),
+        q(
+            "hydrogen_density",
+            "cm-3",
+            "total hydrogen number density",
+            false,
+        ),
+        q("mass_density", "g cm-3", "mass density", false),
+    ];
+    // A state variable that is also an axis is stored once, as the axis.
+    v.retain(|x| x.per_line || !plan.axes.iter().any(|a| a.name == x.name));
+    for s in line_species(plan) {
+        v.push(q(
+            &format!("fraction_{}", s.replace(' ', "_")),
+            "1",
+            &format!("fraction of the element in stage {s}"),
+            false,
+        ));
+    }
+    v
+}
+
+/// Species carrying the plan's lines, in first-appearance order.
+pub fn line_species(plan: &Plan) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    for l in &plan.lines {
+        if !out.contains(&l.species) {
+            out.push(l.species.clone());
+        }
+    }
+    out
+}
+
+/// Values of one point: for each quantity, `n_lines` values (per-line) or one.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PointValues {
+    /// Per quantity (in [`quantities`] order) its values.
+    pub values: Vec<Vec<f64>>,
+    /// Status code.
+    pub status: u8,
+}
+
+/// Evaluate one point of a plan. Failures give NaN values and a status code, never a panic.
+pub fn evaluate(plan: &Plan, quantities: &[Quantity], flat: usize) -> PointValues {
+    let data = AtomicData::embedded();
+    let n_lines = plan.lines.len();
+    let nan = |st: u8| PointValues {
+        values: quantities
+            .iter()
+            .map(|q| vec![f64::NAN; if q.per_line { n_lines } else { 1 }])
+            .collect(),
+        status: st,
+    };
+    let inputs = plan.point(flat);
+    let state = match eos::solve_with(data, &inputs.state) {
+        Ok(s) => s,
+        Err(StateError::Input(_)) => return nan(status::INVALID_INPUT),
+        Err(StateError::NotConverged(nc)) => {
+            return nan(match nc.reason {
+                eos::ConvergenceFailure::NoRoot => status::NO_ROOT,
+                eos::ConvergenceFailure::IterationLimit => status::ITERATION_LIMIT,
+                eos::ConvergenceFailure::ImpliedDensityOutOfRange => status::DENSITY_OUT_OF_RANGE,
+            });
+        }
+    };
+    let lines: Vec<&crate::atoms::lines::Line> = plan.lines.iter().collect();
+    let strengths = match formation::line_strengths(data, &state, &inputs.slab, &lines) {
+        Ok(s) => s,
+        Err(_) => return nan(status::SLAB_FAILED),
+    };
+    let species = line_species(plan);
+    let mut values = Vec::with_capacity(quantities.len());
+    for q in quantities {
+        let v: Vec<f64> = match q.name.as_str() {
+            "equivalent_width" => strengths
+                .iter()
+                .map(|s| s.equivalent_width.unwrap_or(f64::NAN))
+                .collect(),
+            "line_emission" => strengths
+                .iter()
+                .map(|s| s.emission.unwrap_or(f64::NAN))
+                .collect(),
+            "central_depth" => strengths.iter().map(|s| s.central_depth).collect(),
+            "tau0" => strengths.iter().map(|s| s.tau0).collect(),
+            "fwhm" => strengths.iter().map(|s| s.fwhm_angstrom).collect(),
+            "lower_column" => strengths.iter().map(|s| s.lower_column).collect(),
+            "electron_density" => vec![state.electron_density],
+            "gas_pressure" => vec![state.gas_pressure],
+            "hydrogen_density" => vec![state.hydrogen_density],
+            "mass_density" => vec![state.mass_density],
+            other => {
+                let name = other.trim_start_matches("fraction_").replace('_', " ");
+                let k = species
+                    .iter()
+                    .find(|s| **s == name)
+                    .and_then(|s| data.species_index(s));
+                vec![k.map_or(f64::NAN, |k| state.species[k].fraction)]
+            }
+        };
+        values.push(v);
+    }
+    PointValues {
+        values,
+        status: status::OK,
+    }
+}

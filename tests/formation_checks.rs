@@ -1,0 +1,211 @@
+//! Line formation: shape checks a practitioner knows (common practice, no source) on a
+//! photosphere-like slab — reference mixture, gas pressure 10⁴ dyn cm⁻² (n_H ≈ 10¹⁶ cm⁻³ near
+//! 10⁴ K), a column of 10²² hydrogen nuclei per cm², in front of a Planck background 20 %
+//! hotter than the gas — plus consistency checks of the slab quantities.
+
+use linegrid::atoms::AtomicData;
+use linegrid::atoms::lines::Catalogue;
+use linegrid::eos::{Composition, Density, EosOptions, StateRequest, solve};
+use linegrid::formation::{Background, Geometry, LineStrength, SlabOptions, View, line_strength};
+
+fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
+    let state = solve(&StateRequest {
+        temperature: t,
+        density: Density::GasPressure(1e4),
+        composition: Composition::default(),
+        options: EosOptions::default(),
+    })
+    .unwrap();
+    let opts = SlabOptions {
+        geometry: Geometry::HydrogenColumn(1e22),
+        background: Background::Planck(1.2 * t),
+        microturbulence: 2e5,
+        view: View::Flux,
+        continuum: true,
+    };
+    let cat = Catalogue::embedded();
+    labels
+        .iter()
+        .map(|l| line_strength(AtomicData::embedded(), &state, &opts, cat.get(l).unwrap()).unwrap())
+        .collect()
+}
+
+fn ew(t: f64, label: &str) -> f64 {
+    strengths(t, &[label])[0].equivalent_width.unwrap()
+}
+
+#[test]
+fn h_alpha_peaks_between_8000_and_12000_k() {
+    let ts: Vec<f64> = (0..=30)
+        .map(|i| 5000.0 * (4.0f64).powf(f64::from(i) / 30.0))
+        .collect();
+    let (mut best, mut at) = (0.0, 0.0);
+    for &t in &ts {
+        let w = ew(t, "H-alpha");
+        if w > best {
+            best = w;
+            at = t;
+        }
+    }
+    assert!(
+        (8000.0..=12000.0).contains(&at),
+        "H-alpha peaks at {at:.0} K ({best:.2} A)"
+    );
+}
+
+#[test]
+fn ca_ii_k_beats_every_balmer_line_in_cool_gas() {
+    for t in [5000.0, 5500.0, 6000.0] {
+        let s = strengths(t, &["Ca II K", "H-alpha", "H-beta", "H-gamma", "H-delta"]);
+        let k = s[0].equivalent_width.unwrap();
+        for b in &s[1..] {
+            assert!(
+                k > b.equivalent_width.unwrap(),
+                "T={t}: Ca II K {k} vs {} {:?}",
+                b.label,
+                b.equivalent_width
+            );
+        }
+    }
+}
+
+#[test]
+fn helium_lines_appear_only_in_hot_gas() {
+    for t in [6000.0, 8000.0, 10000.0] {
+        for l in ["He I 4471", "He I 5876"] {
+            assert!(ew(t, l) < 0.015, "{l} at {t} K: {} A", ew(t, l));
+        }
+    }
+    let hot = [15000.0, 20000.0, 25000.0]
+        .iter()
+        .map(|&t| ew(t, "He I 4471"))
+        .fold(0.0, f64::max);
+    assert!(hot > 0.1, "He I 4471 in hot gas: {hot} A");
+}
+
+#[test]
+fn in_a_solar_temperature_gas_balmer_lines_are_weak_but_lyman_alpha_is_strong() {
+    let s = strengths(5800.0, &["Ly-alpha", "H-alpha"]);
+    let (ly, ha) = (&s[0], &s[1]);
+    assert!(ly.tau0 > 1e6 * ha.tau0, "tau0 Ly {} H {}", ly.tau0, ha.tau0);
+    assert!(ly.equivalent_width.unwrap() > 10.0 * ha.equivalent_width.unwrap());
+    assert!(
+        ha.equivalent_width.unwrap() < 1.0,
+        "H-alpha {} A",
+        ha.equivalent_width.unwrap()
+    );
+}
+
+#[test]
+fn emission_without_background_and_intensity_views() {
+    let state = solve(&StateRequest {
+        temperature: 10000.0,
+        density: Density::ElectronDensity(1e13),
+        composition: Composition::pure_hydrogen(),
+        options: EosOptions::default(),
+    })
+    .unwrap();
+    let cat = Catalogue::embedded();
+    let ha = cat.get("H-alpha").unwrap();
+    let mut opts = SlabOptions {
+        geometry: Geometry::Thickness(1e3),
+        background: Background::None,
+        microturbulence: 0.0,
+        view: View::Flux,
+        continuum: true,
+    };
+    let d = AtomicData::embedded();
+    let e = line_strength(d, &state, &opts, ha).unwrap();
+    assert!(e.equivalent_width.is_none() && e.emission.unwrap() > 0.0);
+    // Optically thin (common practice, no source): emission grows in proportion to the
+    // thickness, up to a saturation correction of first order in τ₀ (bounded by τ₀ of the
+    // thicker slab).
+    assert!(e.tau0 < 0.01, "thin: {}", e.tau0);
+    opts.geometry = Geometry::Thickness(2e3);
+    let e2 = line_strength(d, &state, &opts, ha).unwrap();
+    let ratio = e2.emission.unwrap() / e.emission.unwrap();
+    assert!(
+        (ratio / 2.0 - 1.0).abs() < e2.tau0,
+        "ratio {ratio}, tau0 {}",
+        e2.tau0
+    );
+    // Optically thin: I(μ) = S τ/μ, so F = 2π ∫ I μ dμ = 2π I(μ = 1) (to first order in τ,
+    // with E₃ corrections of order τ ln τ: 5 % at these depths).
+    opts.view = View::Intensity(1.0);
+    let i1 = line_strength(d, &state, &opts, ha)
+        .unwrap()
+        .emission
+        .unwrap();
+    let f = e2.emission.unwrap();
+    assert!(
+        (f / (2.0 * std::f64::consts::PI * i1) - 1.0).abs() < 0.05,
+        "F/(2πI) = {}",
+        f / (2.0 * std::f64::consts::PI * i1)
+    );
+}
+
+#[test]
+fn bad_slab_parameters_are_refused() {
+    let state = solve(&StateRequest {
+        temperature: 8000.0,
+        density: Density::GasPressure(1e4),
+        composition: Composition::default(),
+        options: EosOptions::default(),
+    })
+    .unwrap();
+    let cat = Catalogue::embedded();
+    let d = AtomicData::embedded();
+    for (g, bg, mu) in [
+        (Geometry::Thickness(0.0), Background::None, View::Flux),
+        (Geometry::Thickness(-1.0), Background::None, View::Flux),
+        (
+            Geometry::HydrogenColumn(f64::NAN),
+            Background::None,
+            View::Flux,
+        ),
+        (
+            Geometry::Thickness(1.0),
+            Background::Planck(-5.0),
+            View::Flux,
+        ),
+        (
+            Geometry::Thickness(1.0),
+            Background::None,
+            View::Intensity(0.0),
+        ),
+        (
+            Geometry::Thickness(1.0),
+            Background::None,
+            View::Intensity(1.5),
+        ),
+    ] {
+        let o = SlabOptions {
+            geometry: g,
+            background: bg,
+            microturbulence: 0.0,
+            view: mu,
+            continuum: true,
+        };
+        assert!(
+            linegrid::formation::line_strengths(d, &state, &o, &[cat.get("H-alpha").unwrap()])
+                .is_err()
+        );
+    }
+    // A line of an element not in the composition.
+    let pure = solve(&StateRequest {
+        temperature: 8000.0,
+        density: Density::GasPressure(1e4),
+        composition: Composition::pure_hydrogen(),
+        options: EosOptions::default(),
+    })
+    .unwrap();
+    let o = SlabOptions {
+        geometry: Geometry::Thickness(1.0),
+        background: Background::None,
+        microturbulence: 0.0,
+        view: View::Flux,
+        continuum: true,
+    };
+    let e = line_strength(d, &pure, &o, cat.get("Ca II K").unwrap()).unwrap_err();
+    assert!(e.to_string().contains("Ca II"));
+}
