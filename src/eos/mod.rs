@@ -219,6 +219,8 @@ pub struct State {
     pub iterations: u32,
     /// The perturbers of the final state (for line broadening downstream).
     pub perturbers: Perturbers,
+    /// The level cut-off the state was solved with.
+    pub cutoff: LevelCutoff,
 }
 
 impl State {
@@ -397,6 +399,8 @@ pub fn solve_with(data: &AtomicData, req: &StateRequest) -> std::result::Result<
                             ShellWeights::HardCut {
                                 min_binding_cm: lowering * EV / crate::constants::HC,
                             }
+                        } else if let LevelCutoff::MaxShell(max_shell) = req.options.cutoff {
+                            ShellWeights::MaxShell { max_shell }
                         } else {
                             ShellWeights::Occupation(OccupationModel::new(h.z, &perturbers))
                         };
@@ -610,6 +614,7 @@ pub fn solve_with(data: &AtomicData, req: &StateRequest) -> std::result::Result<
         hydrogen_levels,
         iterations,
         perturbers,
+        cutoff: req.options.cutoff,
     })
 }
 
@@ -634,6 +639,7 @@ fn hydrogen_populations(
         LevelCutoff::OccupationProbability => {
             ShellWeights::Occupation(OccupationModel::new(1, perturbers))
         }
+        LevelCutoff::MaxShell(max_shell) => ShellWeights::MaxShell { max_shell },
     };
     (1..=options.hydrogen_levels)
         .map(|n| {
@@ -654,6 +660,31 @@ fn hydrogen_populations(
 
 fn hydrogenic_weight(n: u32) -> f64 {
     crate::atoms::hydrogenic::Hydrogenic::weight(n)
+}
+
+/// From a point `from` on the near side, step downwards (first step `step`, growing by
+/// `factor`) until g reaches the far side; returns the bracket (lo on the far side, hi).
+fn search_down(
+    g: &mut impl FnMut(f64, &mut [f64]) -> (f64, f64),
+    far: impl Fn(f64) -> bool,
+    from: f64,
+    mut step: f64,
+    factor: f64,
+    scratch: &mut [f64],
+) -> Option<(f64, f64)> {
+    let mut hi = from;
+    loop {
+        let y = from - step;
+        let (gy, _) = g(y, scratch);
+        if gy.is_nan() || step > 4000.0 {
+            return None;
+        }
+        if far(gy) {
+            return Some((y, hi));
+        }
+        hi = y;
+        step *= factor;
+    }
 }
 
 /// Find the root of a monotone function g(y) of y = ln n_e by Newton steps kept inside a
@@ -706,20 +737,7 @@ fn solve_monotone(
                     step *= 4.0;
                 }
             } else {
-                hi = s;
-                loop {
-                    let y = s - step;
-                    let (gy, _) = g(y, scratch);
-                    if gy.is_nan() || step > 4000.0 {
-                        return None;
-                    }
-                    if far(gy) {
-                        lo = y;
-                        break;
-                    }
-                    hi = y;
-                    step *= 4.0;
-                }
+                (lo, hi) = search_down(&mut g, far, s, step, 4.0, scratch)?;
             }
         }
         None => {
@@ -727,21 +745,7 @@ fn solve_monotone(
             if g_edge.is_nan() || far(g_edge) {
                 return None;
             }
-            hi = edge;
-            let mut step = 1.0;
-            loop {
-                let y = edge - step;
-                let (gy, _) = g(y, scratch);
-                if gy.is_nan() || step > 4000.0 {
-                    return None;
-                }
-                if far(gy) {
-                    lo = y;
-                    break;
-                }
-                hi = y;
-                step *= 2.0;
-            }
+            (lo, hi) = search_down(&mut g, far, edge, 1.0, 2.0, scratch)?;
         }
     }
     let mut y = match start {
