@@ -11,6 +11,7 @@ pub mod eos;
 pub mod error;
 pub mod formation;
 pub mod grid;
+pub mod interp;
 pub mod opacity;
 pub mod transfer;
 
