@@ -71,6 +71,32 @@ fn every_bad_spec_is_refused_with_a_specific_message_and_no_output() {
             .collect();
         assert!(left.is_empty(), "{name} left {left:?}");
     }
+    // An output path that cannot be created (its parent is a regular file): exit 2, nothing
+    // written.
+    let good = good_spec(tmp.path());
+    let blocker = tmp.path().join("blocker");
+    std::fs::write(&blocker, b"a file, not a folder").unwrap();
+    let o = run(&[
+        "build",
+        good.to_str().unwrap(),
+        "--output",
+        blocker.join("sub/g.h5").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("blocker"), "{}", stderr(&o));
+    // --resume with a foreign file where the partial file should be.
+    let out = tmp.path().join("r.h5");
+    std::fs::write(tmp.path().join("r.h5.partial"), b"not a grid").unwrap();
+    let o = run(&[
+        "build",
+        good.to_str().unwrap(),
+        "--output",
+        out.to_str().unwrap(),
+        "--resume",
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("r.h5.partial"), "{}", stderr(&o));
+    assert!(!out.exists());
     // A spec that does not exist.
     let o = run(&["build", "no/such/spec.toml"]);
     assert_eq!(o.status.code(), Some(2));
