@@ -13,6 +13,7 @@ macro_rules! outln {
 
 mod build;
 mod info;
+mod sample;
 mod slab;
 mod state;
 mod voigt;
@@ -63,6 +64,8 @@ enum Command {
     Shards(build::ShardsArgs),
     /// Evaluate the Voigt function H(a, v) for `a v` pairs from standard input or a file (CSV out)
     Voigt(voigt::VoigtArgs),
+    /// Interpolate a grid at points: value and gradient (multilinear or cubic), CSV or JSON
+    Sample(sample::SampleArgs),
 }
 
 /// A failure with the exit code it maps to.
@@ -117,6 +120,7 @@ pub fn run() -> ExitCode {
         Command::Merge(a) => build::merge(a),
         Command::Shards(a) => build::shards(a),
         Command::Voigt(a) => voigt::run(a),
+        Command::Sample(a) => sample::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
