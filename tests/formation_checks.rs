@@ -22,6 +22,7 @@ fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
         microturbulence: 2e5,
         view: View::Flux,
         continuum: true,
+        damping: None,
     };
     let cat = Catalogue::embedded();
     labels
@@ -113,6 +114,7 @@ fn emission_without_background_and_intensity_views() {
         microturbulence: 0.0,
         view: View::Flux,
         continuum: true,
+        damping: None,
     };
     let d = AtomicData::embedded();
     let e = line_strength(d, &state, &opts, ha).unwrap();
@@ -185,6 +187,7 @@ fn bad_slab_parameters_are_refused() {
             microturbulence: 0.0,
             view: mu,
             continuum: true,
+            damping: None,
         };
         assert!(
             linegrid::formation::line_strengths(d, &state, &o, &[cat.get("H-alpha").unwrap()])
@@ -205,6 +208,7 @@ fn bad_slab_parameters_are_refused() {
         microturbulence: 0.0,
         view: View::Flux,
         continuum: true,
+        damping: None,
     };
     let e = line_strength(d, &pure, &o, cat.get("Ca II K").unwrap()).unwrap_err();
     assert!(e.to_string().contains("Ca II"));

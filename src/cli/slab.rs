@@ -158,6 +158,7 @@ pub fn slab(a: SlabArgs) -> Result<(), Failure> {
         microturbulence: a.microturbulence * 1e5,
         view: a.mu.map_or(View::Flux, View::Intensity),
         continuum: !a.no_continuum,
+        damping: None,
     };
     opts.validate().map_err(slab_failure)?;
     let cat = a.lines.catalogue()?;
@@ -345,6 +346,7 @@ pub fn growth(a: GrowthArgs) -> Result<(), Failure> {
         microturbulence: a.microturbulence * 1e5,
         view: View::Flux,
         continuum: false,
+        damping: None,
     };
     opts.validate().map_err(slab_failure)?;
     let su = formation::setup_line(data, &state, &opts, &line).map_err(slab_failure)?;

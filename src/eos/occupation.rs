@@ -27,14 +27,19 @@ pub enum LevelCutoff {
     /// Levels above the Debye-lowered ionisation limit are dropped; the Saha ionisation energy
     /// is lowered by the same Δχ = Z e²/λ_D.
     Debye,
+    /// Hydrogen-like shells n ≤ the given maximum count fully, higher shells not at all; no
+    /// lowering of the ionisation energy (a textbook hard cut-off, for comparisons with
+    /// simplified models).
+    MaxShell(u32),
 }
 
 impl LevelCutoff {
-    /// Stable name ("occupation-probability", "debye").
+    /// Stable name ("occupation-probability", "debye", "hard").
     pub fn name(&self) -> &'static str {
         match self {
             LevelCutoff::OccupationProbability => "occupation-probability",
             LevelCutoff::Debye => "debye",
+            LevelCutoff::MaxShell(_) => "hard",
         }
     }
 }

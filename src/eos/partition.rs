@@ -37,6 +37,11 @@ pub enum ShellWeights {
         /// Smallest binding energy (cm⁻¹) a shell must have.
         min_binding_cm: f64,
     },
+    /// Shells n ≤ `max_shell` count fully, the rest not at all.
+    MaxShell {
+        /// Highest shell counted.
+        max_shell: u32,
+    },
 }
 
 impl ShellWeights {
@@ -46,6 +51,13 @@ impl ShellWeights {
             ShellWeights::Occupation(m) => m.w(n),
             ShellWeights::HardCut { min_binding_cm } => {
                 if h.binding_wavenumber(n) > *min_binding_cm {
+                    1.0
+                } else {
+                    0.0
+                }
+            }
+            ShellWeights::MaxShell { max_shell } => {
+                if n <= *max_shell {
                     1.0
                 } else {
                     0.0

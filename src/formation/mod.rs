@@ -33,7 +33,7 @@ use crate::atoms::AtomicData;
 use crate::atoms::lines::Line;
 use crate::constants::{AMU, C, HC_OVER_K, PI_E2_OVER_MC};
 use crate::eos::State;
-use crate::eos::occupation::OccupationModel;
+use crate::eos::occupation::{LevelCutoff, OccupationModel};
 use crate::opacity::broadening::{self, BroadeningGas, Widths};
 use crate::opacity::continuum::{self, Continuum, ContinuumGas};
 use crate::opacity::stark::StarkProfile;
@@ -70,6 +70,18 @@ pub enum View {
     Intensity(f64),
 }
 
+/// A fixed damping law that replaces every line's own broadening rules: the Lorentz width
+/// (FWHM, rad s⁻¹) is Γ = `radiative` + `stark_coefficient` · n_e^{2/3}, no van der Waals
+/// term, and hydrogen lines keep a plain Voigt profile (no linear Stark pattern). Meant for
+/// comparisons with simplified models.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct DampingOverride {
+    /// Constant part of Γ, rad s⁻¹.
+    pub radiative: f64,
+    /// Coefficient of n_e^{2/3} (n_e in cm⁻³), rad s⁻¹ cm².
+    pub stark_coefficient: f64,
+}
+
 /// Slab parameters.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct SlabOptions {
@@ -83,6 +95,9 @@ pub struct SlabOptions {
     pub view: View,
     /// Include continuum opacity (H⁻, H bound–free and free–free, Thomson, Rayleigh).
     pub continuum: bool,
+    /// Replace the broadening rules by a fixed damping law (`None`: the rules of
+    /// [`crate::opacity::broadening`]).
+    pub damping: Option<DampingOverride>,
 }
 
 /// Strength of one line.
@@ -179,6 +194,20 @@ impl SlabOptions {
                 expected: "must be between 0 and 1000 km/s",
             });
         }
+        if let Some(d) = self.damping {
+            for (field, v) in [
+                ("damping.radiative", d.radiative),
+                ("damping.stark_coefficient", d.stark_coefficient),
+            ] {
+                if !(v.is_finite() && v >= 0.0) {
+                    return Err(SlabError::Invalid {
+                        field,
+                        value: v,
+                        expected: "must be a finite number >= 0",
+                    });
+                }
+            }
+        }
         Ok(())
     }
 
@@ -260,8 +289,16 @@ pub fn setup_line(
     let boltz = (-line.lower_cm * HC_OVER_K / t).exp();
     let mut lower = st.density * line.g_lower * boltz / st.partition_function;
     if let (Some(h), Some((lo, up))) = (&sp.hydrogenic, line.shells) {
-        let m = OccupationModel::new(h.z, &state.perturbers);
-        let (wl, wu) = (m.w(lo), m.w(up));
+        let (wl, wu) = match state.cutoff {
+            LevelCutoff::MaxShell(max) => {
+                let w = |n: u32| if n <= max { 1.0 } else { 0.0 };
+                (w(lo), w(up))
+            }
+            _ => {
+                let m = OccupationModel::new(h.z, &state.perturbers);
+                (m.w(lo), m.w(up))
+            }
+        };
         // Population carries w_l; the transition carries w_u/w_l.
         lower *= wl * if wl > 0.0 { wu / wl } else { 0.0 };
     }
@@ -274,7 +311,7 @@ pub fn setup_line(
         microturbulence: opts.microturbulence,
     };
     let mass = data.elements[sp.element].mass_amu * AMU;
-    let widths = broadening::widths(
+    let mut widths = broadening::widths(
         line,
         mass,
         sp.ionization_ev,
@@ -282,6 +319,11 @@ pub fn setup_line(
         sp.hydrogenic.as_ref(),
         &gas,
     );
+    if let Some(d) = opts.damping {
+        widths.gamma_rad = d.radiative;
+        widths.gamma_vdw = 0.0;
+        widths.gamma_stark = d.stark_coefficient * state.electron_density.powf(2.0 / 3.0);
+    }
     let a = widths.damping_parameter();
     let nu0 = C / line.wavelength_vac;
     let stim = -(-HC_OVER_K * nu0 / C / t).exp_m1();
@@ -294,6 +336,7 @@ pub fn setup_line(
         0.0
     };
     let stark = match (&sp.hydrogenic, line.shells) {
+        _ if opts.damping.is_some() => None,
         (Some(h), Some((lo, up))) if lo <= 6 && up <= 30 && widths.doppler_cm > 0.0 => {
             Some(StarkProfile::new(
                 lo,
@@ -400,8 +443,30 @@ pub fn line_strength(
     };
     let fc0 = emergent(opts.view, tau_c, s0, bg0);
     let absorption = matches!(opts.background, Background::Planck(_));
+    // Intensity against a Planck background has a closed-form depth (below) that needs three
+    // exponentials per wavelength instead of eight.
+    let intensity_bg = match (opts.view, opts.background) {
+        (View::Intensity(mu), Background::Planck(tb)) => {
+            let ec = (-tau_c / mu).exp();
+            Some((mu, t / tb, ec, -(-tau_c / mu).exp_m1()))
+        }
+        _ => None,
+    };
     // The integrand as a function of the wavelength offset x (cm).
     let profile = |x: f64| -> f64 {
+        if let Some((mu, t_over_tb, ec, one_minus_ec)) = intensity_bg {
+            // I = I_bg e^{-x} + S (1 - e^{-x}), x = (τ + τ_c)/μ, I_c the same with τ = 0, so
+            // 1 - I/I_c = (1 - r) e^{-x_c} (1 - e^{-τ/μ}) / (e^{-x_c} + r (1 - e^{-x_c}))
+            // with r = S/I_bg = B_ν(T)/B_ν(T_bg) = (e^{y_bg} - 1)/(e^{y} - 1), y = hν/kT
+            // (beyond y ~ 700 the general form below handles the under- and overflows).
+            let y = HC_OVER_K / ((su.lambda0 + x) * t);
+            let y_bg = y * t_over_tb;
+            if y.max(y_bg) < 700.0 {
+                let r = y_bg.exp_m1() / y.exp_m1();
+                let absorbed = -(-su.tau_line(x) / mu).exp_m1();
+                return (1.0 - r) * ec * absorbed / (ec + r * one_minus_ec);
+            }
+        }
         let lam = su.lambda0 + x;
         let nu = C / lam;
         let s = special::planck_nu(nu, t);
@@ -461,29 +526,56 @@ pub fn line_strength(
 }
 
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
-/// central value, by bracketing and bisection to 1e-6 relative.
+/// central value: bracketed by doubling, then refined by the Illinois variant of false
+/// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
 fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
     }
     let half = 0.5 * centre;
-    let above = |x: f64| (profile(sign * x) - half) * centre.signum() > 0.0;
+    // g > 0 inside the half-maximum, g < 0 outside.
+    let g = |x: f64| (profile(sign * x) - half) * centre.signum();
     let (mut lo, mut hi) = (0.0, core.max(1e-16));
+    let (mut g_lo, mut g_hi) = (centre.abs() - half.abs(), g(hi));
     let mut guard = 0;
-    while above(hi) {
-        lo = hi;
+    while g_hi > 0.0 {
+        (lo, g_lo) = (hi, g_hi);
         hi *= 2.0;
+        g_hi = g(hi);
         guard += 1;
         if guard > 200 {
             return f64::INFINITY;
         }
     }
-    while hi - lo > 1e-6 * hi {
-        let mid = 0.5 * (lo + hi);
-        if above(mid) {
-            lo = mid;
+    // Invariant: g(lo) > 0 >= g(hi). `side` remembers which end moved last (Illinois).
+    let mut side = 0i8;
+    for _ in 0..200 {
+        if hi - lo <= 1e-6 * hi {
+            break;
+        }
+        let mut x = if g_lo.is_finite() && g_hi.is_finite() && g_lo > g_hi {
+            hi - g_hi * (hi - lo) / (g_hi - g_lo)
         } else {
-            hi = mid;
+            0.5 * (lo + hi)
+        };
+        // Keep strictly inside, at least a thousandth of the bracket from either end.
+        let margin = 1e-3 * (hi - lo);
+        if !(x > lo + margin && x < hi - margin) {
+            x = 0.5 * (lo + hi);
+        }
+        let gx = g(x);
+        if gx > 0.0 {
+            (lo, g_lo) = (x, gx);
+            if side == 1 {
+                g_hi *= 0.5;
+            }
+            side = 1;
+        } else {
+            (hi, g_hi) = (x, gx);
+            if side == -1 {
+                g_lo *= 0.5;
+            }
+            side = -1;
         }
     }
     0.5 * (lo + hi)

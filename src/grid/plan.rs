@@ -125,6 +125,27 @@ impl Plan {
                 ));
             }
         }
+        // A restricted mixture must name known elements and keep every line's element.
+        if let Some(els) = &spec.physics.elements {
+            for el in els {
+                if data.element_index(el).is_none() {
+                    return Err(err("physics.elements", format!("unknown element '{el}'")));
+                }
+            }
+            for l in &lines {
+                let k = l.species_index.expect("checked above");
+                let el = &data.elements[data.species[k].element].symbol;
+                if !els.contains(el) {
+                    return Err(err(
+                        "physics.elements",
+                        format!(
+                            "line '{}' needs element '{el}', which the element list leaves out",
+                            l.label
+                        ),
+                    ));
+                }
+            }
+        }
         // Element offsets must name known elements.
         for p in &spec.parameters {
             if let Some(el) = &p.element
@@ -229,12 +250,12 @@ impl Plan {
             metallicity: v(ParamKind::Metallicity).unwrap_or(0.0),
             helium_ratio: v(ParamKind::HeliumRatio),
             offsets,
-            elements: None,
+            elements: self.spec.physics.elements.clone(),
         };
-        let cutoff = if self.spec.physics.cutoff == "debye" {
-            LevelCutoff::Debye
-        } else {
-            LevelCutoff::OccupationProbability
+        let cutoff = match (self.spec.physics.cutoff.as_str(), self.spec.physics.max_shell) {
+            ("debye", _) => LevelCutoff::Debye,
+            ("hard", Some(m)) => LevelCutoff::MaxShell(m),
+            _ => LevelCutoff::OccupationProbability,
         };
         let geometry = match (v(ParamKind::Thickness), v(ParamKind::HydrogenColumn)) {
             (Some(l), _) => Geometry::Thickness(l),
@@ -264,6 +285,7 @@ impl Plan {
                 microturbulence: v(ParamKind::Microturbulence).unwrap_or(2.0) * 1e5,
                 view: self.spec.physics.mu.map_or(View::Flux, View::Intensity),
                 continuum: self.spec.physics.continuum,
+                damping: self.spec.physics.damping,
             },
         }
     }

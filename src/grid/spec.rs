@@ -30,9 +30,14 @@
 //!
 //! [physics]
 //! continuum = true
-//! cutoff = "occupation-probability"   # or "debye"
+//! cutoff = "occupation-probability"   # or "debye", or "hard" (shells n <= max_shell)
+//! max_shell = 30                      # only with cutoff = "hard" (default 30)
 //! populations = "lte"
 //! mu = 1.0                            # measure in intensity at this mu (default: flux)
+//! elements = ["H"]                    # restrict the mixture (must include H; default: all)
+//! damping = { radiative = 1e8, stark_coefficient = 1e-5 }
+//!                                     # replace all broadening rules: Γ = radiative +
+//!                                     # stark_coefficient n_e^(2/3) rad/s, plain Voigt
 //! ```
 
 use std::collections::BTreeMap;
@@ -104,6 +109,16 @@ struct RawPhysics {
     #[serde(default = "default_populations")]
     populations: String,
     mu: Option<f64>,
+    max_shell: Option<u32>,
+    elements: Option<Vec<String>>,
+    damping: Option<RawDamping>,
+}
+
+#[derive(Debug, Clone, Copy, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDamping {
+    radiative: f64,
+    stark_coefficient: f64,
 }
 
 impl Default for RawPhysics {
@@ -113,6 +128,9 @@ impl Default for RawPhysics {
             cutoff: default_cutoff(),
             populations: default_populations(),
             mu: None,
+            max_shell: None,
+            elements: None,
+            damping: None,
         }
     }
 }
@@ -319,12 +337,18 @@ pub struct LineSpec {
 pub struct PhysicsSpec {
     /// Continuum opacity on.
     pub continuum: bool,
-    /// Level cut-off: "occupation-probability" or "debye".
+    /// Level cut-off: "occupation-probability", "debye" or "hard".
     pub cutoff: String,
+    /// Highest hydrogen-like shell counted with `cutoff = "hard"`.
+    pub max_shell: Option<u32>,
     /// Populations model: "lte".
     pub populations: String,
     /// Intensity at μ instead of flux.
     pub mu: Option<f64>,
+    /// Only these elements (symbols, must include H); `None`: every element of the table.
+    pub elements: Option<Vec<String>>,
+    /// A fixed damping law replacing every line's broadening rules.
+    pub damping: Option<crate::formation::DampingOverride>,
 }
 
 /// A validated grid specification.
@@ -616,15 +640,62 @@ impl Spec {
             ));
         }
         let p = raw.physics;
-        if p.cutoff != "occupation-probability" && p.cutoff != "debye" {
+        if !["occupation-probability", "debye", "hard"].contains(&p.cutoff.as_str()) {
             return Err(err(
                 line_of_key(text, "cutoff"),
                 "physics.cutoff",
                 format!(
-                    "'{}': use \"occupation-probability\" or \"debye\"",
+                    "'{}': use \"occupation-probability\", \"debye\" or \"hard\"",
                     p.cutoff
                 ),
             ));
+        }
+        let max_shell = match (p.cutoff.as_str(), p.max_shell) {
+            ("hard", m) => {
+                let m = m.unwrap_or(30);
+                if !(2..=crate::eos::partition::MAX_SHELL).contains(&m) {
+                    return Err(err(
+                        line_of_key(text, "max_shell"),
+                        "physics.max_shell",
+                        format!(
+                            "{m}: must be between 2 and {}",
+                            crate::eos::partition::MAX_SHELL
+                        ),
+                    ));
+                }
+                Some(m)
+            }
+            (_, Some(_)) => {
+                return Err(err(
+                    line_of_key(text, "max_shell"),
+                    "physics.max_shell",
+                    "max_shell applies only with cutoff = \"hard\"".into(),
+                ));
+            }
+            (_, None) => None,
+        };
+        if let Some(els) = &p.elements
+            && !els.iter().any(|e| e == "H")
+        {
+            return Err(err(
+                line_of_key(text, "elements"),
+                "physics.elements",
+                "the element list must include H, e.g. elements = [\"H\", \"He\"]".into(),
+            ));
+        }
+        if let Some(d) = p.damping {
+            for (k, v) in [
+                ("radiative", d.radiative),
+                ("stark_coefficient", d.stark_coefficient),
+            ] {
+                if !(v.is_finite() && v >= 0.0) {
+                    return Err(err(
+                        line_of_key(text, "damping"),
+                        &format!("physics.damping.{k}"),
+                        format!("{v}: must be a finite number >= 0 (rad/s)"),
+                    ));
+                }
+            }
         }
         if p.populations != "lte" {
             return Err(err(
@@ -660,8 +731,14 @@ impl Spec {
             physics: PhysicsSpec {
                 continuum: p.continuum,
                 cutoff: p.cutoff,
+                max_shell,
                 populations: p.populations,
                 mu: p.mu,
+                elements: p.elements,
+                damping: p.damping.map(|d| crate::formation::DampingOverride {
+                    radiative: d.radiative,
+                    stark_coefficient: d.stark_coefficient,
+                }),
             },
             text: text.to_string(),
         })
