@@ -11,7 +11,9 @@ macro_rules! outln {
     }};
 }
 
+mod audit;
 mod build;
+mod fit;
 mod info;
 mod sample;
 mod slab;
@@ -66,6 +68,10 @@ enum Command {
     Voigt(voigt::VoigtArgs),
     /// Interpolate a grid at points: value and gradient (multilinear or cubic), CSV or JSON
     Sample(sample::SampleArgs),
+    /// Audit interpolation against the direct solver at cell centres; where to refine
+    Audit(audit::AuditArgs),
+    /// Fit observed line strengths with the grid: every local minimum, chi2, uncertainties
+    Fit(fit::FitArgs),
 }
 
 /// A failure with the exit code it maps to.
@@ -121,6 +127,8 @@ pub fn run() -> ExitCode {
         Command::Shards(a) => build::shards(a),
         Command::Voigt(a) => voigt::run(a),
         Command::Sample(a) => sample::run(a),
+        Command::Audit(a) => audit::run(a),
+        Command::Fit(a) => fit::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -141,6 +141,20 @@ pub struct PointValues {
 
 /// Evaluate one point of a plan. Failures give NaN values and a status code, never a panic.
 pub fn evaluate(plan: &Plan, quantities: &[Quantity], flat: usize) -> PointValues {
+    evaluate_inputs(plan, quantities, &plan.point(flat))
+}
+
+/// Evaluate the physics at arbitrary axis values (e.g. between nodes; see
+/// [`Plan::inputs_at`]). Same contract as [`evaluate`].
+pub fn evaluate_at(plan: &Plan, quantities: &[Quantity], axis_values: &[f64]) -> PointValues {
+    evaluate_inputs(plan, quantities, &plan.inputs_at(axis_values))
+}
+
+fn evaluate_inputs(
+    plan: &Plan,
+    quantities: &[Quantity],
+    inputs: &super::plan::PointInputs,
+) -> PointValues {
     let data = AtomicData::embedded();
     let n_lines = plan.lines.len();
     let nan = |st: u8| PointValues {
@@ -150,7 +164,6 @@ pub fn evaluate(plan: &Plan, quantities: &[Quantity], flat: usize) -> PointValue
             .collect(),
         status: st,
     };
-    let inputs = plan.point(flat);
     let state = match eos::solve_with(data, &inputs.state) {
         Ok(s) => s,
         Err(StateError::Input(_)) => return nan(status::INVALID_INPUT),

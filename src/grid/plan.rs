@@ -208,10 +208,10 @@ impl Plan {
         idx
     }
 
-    /// The value of every parameter at a point.
-    fn value(&self, kind: ParamKind, idx: &[usize]) -> Option<f64> {
+    /// The value of every parameter at a point given by its axis values.
+    fn value(&self, kind: ParamKind, axis_values: &[f64]) -> Option<f64> {
         if let Some(i) = self.axes.iter().position(|a| a.kind == Some(kind)) {
-            return Some(self.axes[i].values.values()[idx[i]]);
+            return Some(axis_values[i]);
         }
         self.fixed
             .iter()
@@ -222,7 +222,20 @@ impl Plan {
     /// Physical inputs of the point with flat index `flat`.
     pub fn point(&self, flat: usize) -> PointInputs {
         let idx = self.unravel(flat);
-        let v = |k| self.value(k, &idx);
+        let values: Vec<f64> = self
+            .axes
+            .iter()
+            .zip(&idx)
+            .map(|(a, &i)| a.values.values()[i])
+            .collect();
+        self.inputs_at(&values)
+    }
+
+    /// Physical inputs at arbitrary axis values (one per axis, storage order; the fixed
+    /// parameters as in the spec). At node values this is exactly [`Plan::point`].
+    pub fn inputs_at(&self, values: &[f64]) -> PointInputs {
+        assert_eq!(values.len(), self.axes.len(), "one value per axis");
+        let v = |k| self.value(k, values);
         let t = v(ParamKind::Temperature).expect("validated: temperature present");
         let density = if let Some(x) = v(ParamKind::HydrogenDensity) {
             Density::HydrogenDensity(x)
@@ -238,7 +251,7 @@ impl Plan {
         let mut offsets = Vec::new();
         for (i, a) in self.axes.iter().enumerate() {
             if let Some(el) = &a.element {
-                offsets.push((el.clone(), a.values.values()[idx[i]]));
+                offsets.push((el.clone(), values[i]));
             }
         }
         for p in &self.fixed {
@@ -252,7 +265,10 @@ impl Plan {
             offsets,
             elements: self.spec.physics.elements.clone(),
         };
-        let cutoff = match (self.spec.physics.cutoff.as_str(), self.spec.physics.max_shell) {
+        let cutoff = match (
+            self.spec.physics.cutoff.as_str(),
+            self.spec.physics.max_shell,
+        ) {
             ("debye", _) => LevelCutoff::Debye,
             ("hard", Some(m)) => LevelCutoff::MaxShell(m),
             _ => LevelCutoff::OccupationProbability,

@@ -20,6 +20,8 @@
 //! whose stencil touches a flagged node (status ≠ 0, NaN, or a non-positive value under
 //! log10) is an error, never silently used.
 
+pub mod fit;
+
 use std::path::{Path, PathBuf};
 
 use ndarray::ArrayD;

@@ -1,0 +1,397 @@
+//! Fitting observed line strengths with grid interpolators: bound-constrained
+//! Levenberg–Marquardt (Moré 1978, "The Levenberg–Marquardt algorithm: implementation and
+//! theory", Numerical Analysis, Lecture Notes in Mathematics 630, 105–116; Marquardt's
+//! diagonal scaling, steps projected onto the grid box) from several seeded starting points,
+//! with χ², reduced χ², the covariance (JᵀJ)⁻¹ in physical units and every distinct local
+//! minimum.
+//!
+//! The search runs in normalised coordinates z ∈ [0, 1] per free axis (linear in the axis'
+//! interpolation coordinate), so that all axes are equally scaled.
+
+// Small dense linear algebra reads best with explicit indices.
+#![allow(clippy::needless_range_loop)]
+
+use super::{Coord, Interpolator};
+
+/// Fit options.
+#[derive(Debug, Clone)]
+pub struct FitOptions {
+    /// Random starting points (in addition to the best grid node).
+    pub starts: usize,
+    /// Seed of the starting points.
+    pub seed: u64,
+    /// Iteration limit per start.
+    pub max_iterations: usize,
+    /// Two minima are distinct when some free axis differs by more than this in z.
+    pub distinct: f64,
+}
+
+impl Default for FitOptions {
+    fn default() -> FitOptions {
+        FitOptions {
+            starts: 16,
+            seed: 1,
+            max_iterations: 200,
+            distinct: 0.03,
+        }
+    }
+}
+
+/// One local minimum.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Minimum {
+    /// All axis values (fixed ones included), physical units.
+    pub parameters: Vec<f64>,
+    /// 1σ uncertainty per axis from the covariance (0 for fixed axes; None if the
+    /// parameter is not constrained: singular JᵀJ).
+    pub uncertainties: Vec<Option<f64>>,
+    /// Covariance over the free axes (row-major, free-axis order), if JᵀJ is regular.
+    pub covariance: Option<Vec<f64>>,
+    /// χ².
+    pub chi2: f64,
+    /// χ² / (observations − free parameters), if positive degrees of freedom.
+    pub reduced_chi2: Option<f64>,
+    /// Whether some free parameter sits on the grid's edge.
+    pub at_edge: bool,
+    /// How many starts ended here.
+    pub hits: usize,
+}
+
+/// The result of a fit.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct FitResult {
+    /// Distinct local minima, best first.
+    pub minima: Vec<Minimum>,
+    /// Minima other than the best one whose χ² is within 1 of the best (Δχ² < 1: the data
+    /// cannot tell them apart at 1σ).
+    pub degenerate: bool,
+    /// Starting points that could not be evaluated (stencil on flagged nodes).
+    pub failed_starts: usize,
+}
+
+/// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA).
+fn splitmix(state: &mut u64) -> f64 {
+    *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    let mut z = *state;
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+}
+
+struct Problem<'a> {
+    models: &'a [&'a Interpolator],
+    obs: &'a [f64],
+    sigma: &'a [f64],
+    base: Vec<f64>,
+    free: Vec<usize>,
+    coords: Vec<Coord>,
+    /// Per axis (u_lo, u_hi) of the coordinate, and physical (lo, hi).
+    u_range: Vec<(f64, f64)>,
+    x_range: Vec<(f64, f64)>,
+}
+
+fn inverse(c: Coord, u: f64) -> f64 {
+    match c {
+        Coord::Linear => u,
+        Coord::Log10 => 10f64.powf(u),
+        Coord::Theta => 5040.0 / u,
+    }
+}
+
+impl Problem<'_> {
+    fn x_of(&self, z: &[f64]) -> Vec<f64> {
+        let mut x = self.base.clone();
+        for (j, &d) in self.free.iter().enumerate() {
+            let (a, b) = self.u_range[d];
+            let u = a + z[j].clamp(0.0, 1.0) * (b - a);
+            x[d] = inverse(self.coords[d], u).clamp(self.x_range[d].0, self.x_range[d].1);
+        }
+        x
+    }
+
+    /// Residuals and Jacobian in z (rows = observations), or None on a flagged stencil.
+    fn residuals(&self, z: &[f64], wrt_x: bool) -> Option<(Vec<f64>, Vec<Vec<f64>>)> {
+        let x = self.x_of(z);
+        let mut r = Vec::with_capacity(self.obs.len());
+        let mut jac = Vec::with_capacity(self.obs.len());
+        for ((m, &y), &s) in self.models.iter().zip(self.obs).zip(self.sigma) {
+            let smp = m.evaluate(&x).ok()?;
+            r.push((smp.value - y) / s);
+            let row: Vec<f64> = self
+                .free
+                .iter()
+                .map(|&d| {
+                    let g = smp.gradient[d] / s;
+                    if wrt_x {
+                        return g;
+                    }
+                    // dx/dz = dx/du · (u_hi − u_lo).
+                    let (a, b) = self.u_range[d];
+                    let dxdu = match self.coords[d] {
+                        Coord::Linear => 1.0,
+                        Coord::Log10 => x[d] * std::f64::consts::LN_10,
+                        Coord::Theta => -x[d] * x[d] / 5040.0,
+                    };
+                    g * dxdu * (b - a)
+                })
+                .collect();
+            jac.push(row);
+        }
+        Some((r, jac))
+    }
+}
+
+/// Solve the symmetric positive system A x = b (Cholesky); None if not positive definite.
+fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
+    let n = b.len();
+    let mut l = vec![vec![0.0; n]; n];
+    for i in 0..n {
+        for j in 0..=i {
+            let mut s = a[i][j];
+            for k in 0..j {
+                s -= l[i][k] * l[j][k];
+            }
+            if i == j {
+                if s <= 1e-14 * a[i][i].abs().max(f64::MIN_POSITIVE) || !s.is_finite() {
+                    return None;
+                }
+                l[i][i] = s.sqrt();
+            } else {
+                l[i][j] = s / l[j][j];
+            }
+        }
+    }
+    let mut y = vec![0.0; n];
+    for i in 0..n {
+        let mut s = b[i];
+        for k in 0..i {
+            s -= l[i][k] * y[k];
+        }
+        y[i] = s / l[i][i];
+    }
+    let mut x = vec![0.0; n];
+    for i in (0..n).rev() {
+        let mut s = y[i];
+        for k in i + 1..n {
+            s -= l[k][i] * x[k];
+        }
+        x[i] = s / l[i][i];
+    }
+    Some(x)
+}
+
+fn normal_equations(r: &[f64], jac: &[Vec<f64>], n: usize) -> (Vec<Vec<f64>>, Vec<f64>) {
+    let mut a = vec![vec![0.0; n]; n];
+    let mut g = vec![0.0; n];
+    for (row, &ri) in jac.iter().zip(r) {
+        for i in 0..n {
+            g[i] += row[i] * ri;
+            for j in 0..n {
+                a[i][j] += row[i] * row[j];
+            }
+        }
+    }
+    (a, g)
+}
+
+fn chi2(r: &[f64]) -> f64 {
+    r.iter().map(|x| x * x).sum()
+}
+
+/// One projected Levenberg–Marquardt descent from `z0`; returns (z, χ²).
+fn descend(p: &Problem, z0: Vec<f64>, max_iterations: usize) -> Option<(Vec<f64>, f64)> {
+    let n = z0.len();
+    let mut z = z0;
+    let (mut r, mut jac) = p.residuals(&z, false)?;
+    let mut c = chi2(&r);
+    let mut lambda = 1e-3;
+    for _ in 0..max_iterations {
+        let (a, g) = normal_equations(&r, &jac, n);
+        let mut improved = false;
+        for _ in 0..30 {
+            let mut m = a.clone();
+            for i in 0..n {
+                m[i][i] += lambda * a[i][i].max(1e-12);
+            }
+            let neg: Vec<f64> = g.iter().map(|x| -x).collect();
+            let Some(step) = cholesky_solve(&m, &neg) else {
+                lambda *= 10.0;
+                continue;
+            };
+            let trial: Vec<f64> = z
+                .iter()
+                .zip(&step)
+                .map(|(a, b)| (a + b).clamp(0.0, 1.0))
+                .collect();
+            match p.residuals(&trial, false) {
+                Some((rt, jt)) if chi2(&rt) < c => {
+                    let ct = chi2(&rt);
+                    let moved = trial
+                        .iter()
+                        .zip(&z)
+                        .map(|(a, b)| (a - b).abs())
+                        .fold(0.0, f64::max);
+                    let done = (c - ct) <= 1e-12 * c.max(1e-300) || moved < 1e-12;
+                    z = trial;
+                    r = rt;
+                    jac = jt;
+                    c = ct;
+                    lambda = (lambda / 3.0).max(1e-12);
+                    improved = true;
+                    if done {
+                        return Some((z, c));
+                    }
+                    break;
+                }
+                _ => lambda *= 4.0,
+            }
+            if lambda > 1e12 {
+                break;
+            }
+        }
+        if !improved {
+            break;
+        }
+    }
+    Some((z, c))
+}
+
+/// Fit observations `obs ± sigma` of the quantities `models` (one interpolator per
+/// observation, all over the same grid) over the axes not fixed in `fixed` (per axis:
+/// `Some(value)` holds the axis at that value).
+pub fn fit(
+    models: &[&Interpolator],
+    obs: &[f64],
+    sigma: &[f64],
+    fixed: &[Option<f64>],
+    options: &FitOptions,
+) -> FitResult {
+    let m0 = models[0];
+    let nd = m0.ndim();
+    let coords = m0.coords();
+    let x_range = m0.ranges();
+    let u_range: Vec<(f64, f64)> = (0..nd)
+        .map(|d| {
+            let a = coords[d].apply(x_range[d].0).0;
+            let b = coords[d].apply(x_range[d].1).0;
+            (a, b)
+        })
+        .collect();
+    let free: Vec<usize> = (0..nd).filter(|&d| fixed[d].is_none()).collect();
+    let base: Vec<f64> = (0..nd)
+        .map(|d| fixed[d].unwrap_or(0.5 * (x_range[d].0 + x_range[d].1)))
+        .collect();
+    let p = Problem {
+        models,
+        obs,
+        sigma,
+        base,
+        free: free.clone(),
+        coords,
+        u_range,
+        x_range,
+    };
+    let nf = free.len();
+    // Starting points: seeded uniform in the box, plus the best of a coarse lattice.
+    let mut state = options.seed;
+    let mut starts: Vec<Vec<f64>> = (0..options.starts)
+        .map(|_| (0..nf).map(|_| splitmix(&mut state)).collect())
+        .collect();
+    let lattice = 9usize;
+    let mut best: Option<(f64, Vec<f64>)> = None;
+    let total = lattice.pow(nf as u32);
+    for k in 0..total {
+        let mut rest = k;
+        let z: Vec<f64> = (0..nf)
+            .map(|_| {
+                let i = rest % lattice;
+                rest /= lattice;
+                (i as f64 + 0.5) / lattice as f64
+            })
+            .collect();
+        if let Some((r, _)) = p.residuals(&z, false) {
+            let c = chi2(&r);
+            if best.as_ref().is_none_or(|b| c < b.0) {
+                best = Some((c, z));
+            }
+        }
+    }
+    if let Some((_, z)) = best {
+        starts.push(z);
+    }
+    let mut failed = 0;
+    let mut found: Vec<(Vec<f64>, f64, usize)> = Vec::new();
+    for z0 in starts {
+        match descend(&p, z0, options.max_iterations) {
+            None => failed += 1,
+            Some((z, c)) => {
+                if let Some(f) = found.iter_mut().find(|f| {
+                    f.0.iter()
+                        .zip(&z)
+                        .all(|(a, b)| (a - b).abs() <= options.distinct)
+                }) {
+                    f.2 += 1;
+                    if c < f.1 {
+                        f.0 = z;
+                        f.1 = c;
+                    }
+                } else {
+                    found.push((z, c, 1));
+                }
+            }
+        }
+    }
+    found.sort_by(|a, b| a.1.total_cmp(&b.1));
+    let dof = obs.len() as isize - nf as isize;
+    let minima: Vec<Minimum> = found
+        .into_iter()
+        .map(|(z, c, hits)| {
+            let x = p.x_of(&z);
+            let mut unc = vec![Some(0.0); nd];
+            let mut cov = None;
+            if let Some((r, jac)) = p.residuals(&z, true) {
+                let (a, _) = normal_equations(&r, &jac, nf);
+                // Invert column by column.
+                let mut inv = vec![0.0; nf * nf];
+                let mut ok = true;
+                for j in 0..nf {
+                    let mut e = vec![0.0; nf];
+                    e[j] = 1.0;
+                    match cholesky_solve(&a, &e) {
+                        Some(col) => {
+                            for i in 0..nf {
+                                inv[i * nf + j] = col[i];
+                            }
+                        }
+                        None => ok = false,
+                    }
+                }
+                for (j, &d) in free.iter().enumerate() {
+                    unc[d] = if ok {
+                        Some(inv[j * nf + j].sqrt())
+                    } else {
+                        None
+                    };
+                }
+                if ok {
+                    cov = Some(inv);
+                }
+            }
+            Minimum {
+                at_edge: z.iter().any(|&v| v <= 1e-9 || v >= 1.0 - 1e-9),
+                parameters: x,
+                uncertainties: unc,
+                covariance: cov,
+                chi2: c,
+                reduced_chi2: (dof > 0).then(|| c / dof as f64),
+                hits,
+            }
+        })
+        .collect();
+    let degenerate = minima.len() > 1 && minima[1].chi2 - minima[0].chi2 < 1.0;
+    FitResult {
+        minima,
+        degenerate,
+        failed_starts: failed,
+    }
+}
