@@ -462,8 +462,15 @@ pub fn line_strength(
             let y = HC_OVER_K / ((su.lambda0 + x) * t);
             let y_bg = y * t_over_tb;
             if y.max(y_bg) < 700.0 {
-                let r = y_bg.exp_m1() / y.exp_m1();
-                let absorbed = -(-su.tau_line(x) / mu).exp_m1();
+                // e^z − 1 by exp where that loses at most a bit (z ≥ 0.7), else by expm1.
+                let em1 = |z: f64| if z >= 0.7 { z.exp() - 1.0 } else { z.exp_m1() };
+                let r = em1(y_bg) / em1(y);
+                let tm = su.tau_line(x) / mu;
+                let absorbed = if tm >= 0.7 {
+                    1.0 - (-tm).exp()
+                } else {
+                    -(-tm).exp_m1()
+                };
                 return (1.0 - r) * ec * absorbed / (ec + r * one_minus_ec);
             }
         }

@@ -1,0 +1,178 @@
+//! The switches that let a slab grid match simplified models (scripts/bench-slab): the hard
+//! max-shell cut-off, a restricted mixture, the fixed damping law and the closed-form
+//! intensity depth. Common practice, no source: each is checked against a direct twin.
+
+use linegrid::atoms::AtomicData;
+use linegrid::atoms::hydrogenic::Hydrogenic;
+use linegrid::atoms::lines::Catalogue;
+use linegrid::constants::HC_OVER_K;
+use linegrid::eos::occupation::LevelCutoff;
+use linegrid::eos::{Composition, Density, EosOptions, StateRequest, solve};
+use linegrid::formation::{
+    Background, DampingOverride, Geometry, SlabOptions, View, line_strength, line_strengths,
+    setup_line,
+};
+use linegrid::grid::plan::Plan;
+use linegrid::grid::spec::Spec;
+
+fn pure_h(t: f64, nh: f64, cutoff: LevelCutoff) -> linegrid::eos::State {
+    solve(&StateRequest {
+        temperature: t,
+        density: Density::HydrogenDensity(nh),
+        composition: Composition {
+            elements: Some(vec!["H".into()]),
+            ..Composition::default()
+        },
+        options: EosOptions {
+            cutoff,
+            hydrogen_levels: 30,
+        },
+    })
+    .unwrap()
+}
+
+#[test]
+fn max_shell_partition_function_is_the_direct_sum() {
+    let h = Hydrogenic::HYDROGEN;
+    let data = AtomicData::embedded();
+    let k = data.species_index("H I").unwrap();
+    for &t in &[4000.0, 10000.0, 20000.0] {
+        for &nh in &[1e12, 1e17] {
+            let st = pure_h(t, nh, LevelCutoff::MaxShell(30));
+            let direct: f64 = (1..=30u32)
+                .map(|n| {
+                    Hydrogenic::weight(n) * (-h.excitation_wavenumber(n) * HC_OVER_K / t).exp()
+                })
+                .sum();
+            let u = st.species[k].partition_function;
+            assert!(
+                (u / direct - 1.0).abs() < 1e-12,
+                "T={t} nH={nh}: {u} vs {direct}"
+            );
+            // Shells above the cut carry nothing, the ones below their full weight.
+            assert!(st.hydrogen_levels.iter().all(|l| {
+                let w = l.occupation_probability;
+                (l.n <= 30 && (w - 1.0).abs() < 1e-15) || (l.n > 30 && w.abs() < 1e-300)
+            }));
+        }
+    }
+}
+
+#[test]
+fn damping_override_sets_the_lorentz_width_and_drops_the_stark_pattern() {
+    let state = pure_h(12000.0, 1e16, LevelCutoff::MaxShell(30));
+    let d = DampingOverride {
+        radiative: 1e8,
+        stark_coefficient: 1e-5,
+    };
+    let opts = SlabOptions {
+        geometry: Geometry::Thickness(1e8),
+        background: Background::Planck(1.2 * 12000.0),
+        microturbulence: 2e5,
+        view: View::Intensity(1.0),
+        continuum: false,
+        damping: Some(d),
+    };
+    let ha = Catalogue::embedded().get("H-alpha").unwrap();
+    let su = setup_line(AtomicData::embedded(), &state, &opts, ha).unwrap();
+    let want = 1e8 + 1e-5 * state.electron_density.powf(2.0 / 3.0);
+    assert!((su.widths.gamma() / want - 1.0).abs() < 1e-14);
+    assert!(su.stark.is_none());
+    let without = setup_line(
+        AtomicData::embedded(),
+        &state,
+        &SlabOptions {
+            damping: None,
+            ..opts
+        },
+        ha,
+    )
+    .unwrap();
+    assert!(without.stark.is_some());
+    // Negative coefficients are refused.
+    let bad = SlabOptions {
+        damping: Some(DampingOverride {
+            radiative: -1.0,
+            stark_coefficient: 0.0,
+        }),
+        ..opts
+    };
+    assert!(line_strengths(AtomicData::embedded(), &state, &bad, &[ha]).is_err());
+}
+
+#[test]
+fn closed_form_intensity_depth_matches_the_general_form() {
+    // The intensity view against a Planck background uses a closed form; the flux-free general
+    // path (emission, then the ratio by hand) must give the same depth at line centre.
+    let state = pure_h(9000.0, 1e14, LevelCutoff::OccupationProbability);
+    let ha = Catalogue::embedded().get("H-beta").unwrap();
+    for continuum in [false, true] {
+        for mu in [1.0, 0.3] {
+            let opts = SlabOptions {
+                geometry: Geometry::Thickness(1e8),
+                background: Background::Planck(1.2 * 9000.0),
+                microturbulence: 2e5,
+                view: View::Intensity(mu),
+                continuum,
+                damping: None,
+            };
+            let s = line_strength(AtomicData::embedded(), &state, &opts, ha).unwrap();
+            let su = setup_line(AtomicData::embedded(), &state, &opts, ha).unwrap();
+            let nu = su.nu0;
+            let b = |t: f64| linegrid::transfer::special::planck_nu(nu, t);
+            let (s0, bg) = (b(9000.0), b(1.2 * 9000.0));
+            let i = |tau: f64| bg * (-tau / mu).exp() + s0 * -(-tau / mu).exp_m1();
+            let tc = su.kappa_cont * su.thickness;
+            let depth = 1.0 - i(s.tau0 + tc) / i(tc);
+            assert!(
+                (s.central_depth / depth - 1.0).abs() < 1e-12,
+                "mu={mu} continuum={continuum}: {} vs {depth}",
+                s.central_depth
+            );
+        }
+    }
+}
+
+#[test]
+fn spec_switches_reach_the_plan() {
+    let text = r#"
+[grid]
+title = "t"
+output = "t.h5"
+[parameters]
+temperature = { values = [6000.0, 9000.0] }
+hydrogen_density = 1e15
+thickness = 1e8
+background_ratio = 1.2
+[lines]
+labels = ["H-alpha"]
+[physics]
+continuum = false
+mu = 1.0
+cutoff = "hard"
+max_shell = 30
+elements = ["H"]
+damping = { radiative = 1e8, stark_coefficient = 1e-5 }
+"#;
+    let spec = Spec::parse(text, "t.toml", std::path::Path::new(".")).unwrap();
+    let plan = Plan::new(spec).unwrap();
+    let p = plan.point(0);
+    assert_eq!(p.state.options.cutoff, LevelCutoff::MaxShell(30));
+    assert_eq!(p.state.composition.elements, Some(vec!["H".to_string()]));
+    assert_eq!(
+        p.slab.damping,
+        Some(DampingOverride {
+            radiative: 1e8,
+            stark_coefficient: 1e-5
+        })
+    );
+    // A line whose element the mixture leaves out is refused at plan time.
+    let spec = Spec::parse(
+        &text.replace("\"H-alpha\"", "\"Ca II K\""),
+        "t.toml",
+        std::path::Path::new("."),
+    )
+    .unwrap();
+    let e = Plan::new(spec).unwrap_err();
+    assert!(e.message.contains("leaves out"), "{}", e.message);
+}
