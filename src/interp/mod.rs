@@ -118,6 +118,9 @@ pub enum InterpError {
 /// Result alias.
 pub type Result<T> = std::result::Result<T, InterpError>;
 
+/// Most axes an interpolator takes.
+pub const MAX_AXES: usize = 12;
+
 /// A grid file opened for interpolation.
 #[derive(Debug)]
 pub struct Grid {
@@ -447,6 +450,13 @@ impl Interpolator {
             }
             None => table.axes.iter().map(Coord::default_for).collect(),
         };
+        if nd > MAX_AXES {
+            return Err(InterpError::BadPoint {
+                path: table.path.clone(),
+                dataset: table.name.clone(),
+                reason: format!("{nd} axes; at most {MAX_AXES} are supported"),
+            });
+        }
         let mut axes = Vec::with_capacity(nd);
         for (a, &coord) in table.axes.iter().zip(&coords) {
             if coord != Coord::Linear && a.values.iter().any(|&v| v <= 0.0) {
@@ -649,6 +659,34 @@ impl Interpolator {
         parts.join(",")
     }
 
+    /// Sum factorisation over the axes from `d` on: value and ∂/∂u_e for e ≥ d of the
+    /// tensor-product stencil, or the flat index of a flagged node it touches.
+    fn contract(
+        &self,
+        st: &[Stencil],
+        d: usize,
+        offset: usize,
+    ) -> std::result::Result<[f64; MAX_AXES + 1], usize> {
+        let mut acc = [0.0; MAX_AXES + 1];
+        if d == st.len() {
+            if self.flags[offset].is_some() {
+                return Err(offset);
+            }
+            acc[0] = self.values[offset];
+            return Ok(acc);
+        }
+        let s = &st[d];
+        for j in 0..s.len {
+            let sub = self.contract(st, d + 1, offset + s.idx[j] * self.strides[d])?;
+            acc[0] += s.w[j] * sub[0];
+            acc[1 + d] += s.dw[j] * sub[0];
+            for e in d + 1..st.len() {
+                acc[1 + e] += s.w[j] * sub[1 + e];
+            }
+        }
+        Ok(acc)
+    }
+
     /// Value and gradient at a point (physical parameters, axis order).
     pub fn evaluate(&self, point: &[f64]) -> Result<Sample> {
         let nd = self.axes.len();
@@ -668,48 +706,16 @@ impl Interpolator {
             dudx.push(d);
             clamped.push(c);
         }
-        let mut value = 0.0;
-        let mut grad = vec![0.0; nd];
-        let mut odo = vec![0usize; nd];
-        'outer: loop {
-            let mut flat = 0;
-            let mut w = 1.0;
-            for d in 0..nd {
-                let s = &stencils[d];
-                flat += s.idx[odo[d]] * self.strides[d];
-                w *= s.w[odo[d]];
-            }
-            if let Some(reason) = &self.flags[flat] {
-                return Err(InterpError::Flagged {
-                    path: self.path.clone(),
-                    dataset: self.name.clone(),
-                    node: self.node_name(flat),
-                    reason: reason.clone(),
-                });
-            }
-            let y = self.values[flat];
-            value += w * y;
-            for (g, dd) in grad.iter_mut().zip(0..nd) {
-                let mut p = y;
-                for (e, s) in stencils.iter().enumerate() {
-                    p *= if e == dd { s.dw[odo[e]] } else { s.w[odo[e]] };
-                }
-                *g += p;
-            }
-            // Advance the odometer (last axis fastest).
-            let mut d = nd;
-            loop {
-                if d == 0 {
-                    break 'outer;
-                }
-                d -= 1;
-                odo[d] += 1;
-                if odo[d] < stencils[d].len {
-                    break;
-                }
-                odo[d] = 0;
-            }
-        }
+        let acc = self
+            .contract(&stencils, 0, 0)
+            .map_err(|flat| InterpError::Flagged {
+                path: self.path.clone(),
+                dataset: self.name.clone(),
+                node: self.node_name(flat),
+                reason: self.flags[flat].clone().unwrap_or_default(),
+            })?;
+        let mut value = acc[0];
+        let mut grad = acc[1..=nd].to_vec();
         for (g, d) in grad.iter_mut().zip(&dudx) {
             *g *= d;
         }
