@@ -248,7 +248,9 @@ fn a_killed_run_resumes_to_the_same_bits() {
         let out = tmp.path().join(format!("killed{round}.h5"));
         let partial = PathBuf::from(format!("{}.partial", out.display()));
         seed = seed.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1);
-        let delay = (seed >> 33) % 1200;
+        // At least 150 ms after the partial file appears, so the kill does not land inside
+        // HDF5's own file creation (a file with no pencil yet is not worth resuming).
+        let delay = 150 + (seed >> 33) % 1200;
         let mut child = Command::new(bin())
             .args([
                 "build",
@@ -295,33 +297,45 @@ fn a_killed_run_resumes_to_the_same_bits() {
             .replace("test grid", "another grid"),
     )
     .unwrap();
+    // An unfinished file of the first spec (a shard file: same layout, pencils missing) put
+    // where the other spec's partial file would be.
     let out = tmp.path().join("mix.h5");
-    let mut child = Command::new(bin())
-        .args([
-            "build",
-            s,
-            "--output",
-            out.to_str().unwrap(),
-            "--quiet",
-            "--threads",
-            "1",
-        ])
-        .spawn()
-        .unwrap();
-    std::thread::sleep(std::time::Duration::from_millis(60));
-    let _ = child.kill();
-    let _ = child.wait();
-    if !out.exists() {
-        let o = run(&[
-            "build",
-            other.to_str().unwrap(),
-            "--output",
-            out.to_str().unwrap(),
-            "--resume",
-        ]);
-        assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-        assert!(stderr(&o).contains("digest"), "{}", stderr(&o));
-    }
+    let o = run(&[
+        "build",
+        s,
+        "--output",
+        tmp.path().join("half.h5").to_str().unwrap(),
+        "--shard",
+        "1/2",
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    std::fs::rename(
+        tmp.path().join("half.shard-0000-of-0002.h5"),
+        format!("{}.partial", out.display()),
+    )
+    .unwrap();
+    let o = run(&[
+        "build",
+        other.to_str().unwrap(),
+        "--output",
+        out.to_str().unwrap(),
+        "--resume",
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("digest"), "{}", stderr(&o));
+    assert!(!out.exists());
+    // The same unfinished file resumes under its own spec.
+    let o = run(&[
+        "build",
+        s,
+        "--output",
+        out.to_str().unwrap(),
+        "--resume",
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(want, bits(&out));
 }
 
 #[test]
