@@ -215,6 +215,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
     let mut cell_worst: std::collections::BTreeMap<usize, (f64, String)> = Default::default();
     let mut edge_worst: Vec<(f64, usize, usize, String)> = Vec::new(); // (err, cell, axis, line)
     let mut skipped = 0usize;
+    let mut interp_failed = 0usize;
     for ((c, kind, p), ex) in points.iter().zip(&exact) {
         if ex.status != 0 {
             skipped += 1;
@@ -227,6 +228,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
             }
             for (m, ips) in interps.iter().enumerate() {
                 let Ok(s) = ips[k].evaluate(p) else {
+                    interp_failed += 1;
                     continue;
                 };
                 let err = ((s.value - truth) / truth).abs();
@@ -336,6 +338,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
             "seed": a.seed,
             "physics_evaluations": points.len(),
             "skipped_not_converged": skipped,
+            "interpolation_refused": interp_failed,
             "node_check_max_relative_difference": node_check,
             "per_line": per_line,
             "per_axis": per_axis,
@@ -356,7 +359,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
     );
     outln!(
         o,
-        "cells tested: {} of {n_cells}{}; physics evaluations: {}; skipped (not converged): {skipped}",
+        "cells tested: {} of {n_cells}{}; physics evaluations: {}; skipped (not converged): {skipped}; interpolations refused (flagged stencil): {interp_failed}",
         cells.len(),
         if sampled {
             format!(" (seeded sample, seed {})", a.seed)
