@@ -17,7 +17,9 @@ fn axis(name: &str, values: Vec<f64>) -> AxisMeta {
 }
 
 fn table() -> Table {
-    let t: Vec<f64> = (0..22).map(|i| 5000.0 * 8f64.powf(i as f64 / 21.0)).collect();
+    let t: Vec<f64> = (0..22)
+        .map(|i| 5000.0 * 8f64.powf(i as f64 / 21.0))
+        .collect();
     let p: Vec<f64> = (0..10).map(|i| 10f64.powf(2.0 + 0.4 * i as f64)).collect();
     let m: Vec<f64> = (0..8).map(|i| -2.0 + 0.3 * i as f64).collect();
     let v: Vec<f64> = (0..6).map(|i| 1.0 + i as f64).collect();
