@@ -9,7 +9,7 @@ use serde_json::json;
 use linegrid::interp::fit::{FitOptions, fit};
 use linegrid::interp::{Grid, Interpolator};
 
-use super::sample::{InterpArgs, interp_failure, read_text};
+use super::sample::{InterpArgs, csv_table, interp_failure, read_text};
 use super::{Failure, emit, print_json};
 
 #[derive(Args)]
@@ -43,14 +43,7 @@ pub struct FitArgs {
 /// Parse the observations CSV: (line, value, uncertainty) rows.
 fn parse_observed(text: &str, source: &str) -> Result<Vec<(String, f64, f64)>, Failure> {
     let bad = |m: String| Failure::bad_input(anyhow::anyhow!("{source}: {m}"));
-    let mut rows = text
-        .lines()
-        .enumerate()
-        .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'));
-    let (_, header) = rows
-        .next()
-        .ok_or_else(|| bad("empty: expected the header line,value,uncertainty".into()))?;
-    let names: Vec<&str> = header.split(',').map(str::trim).collect();
+    let (names, rows) = csv_table(text, source, "the header line,value,uncertainty")?;
     let col = |n: &str| {
         names.iter().position(|h| *h == n).ok_or_else(|| {
             bad(format!(

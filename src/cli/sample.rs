@@ -159,17 +159,30 @@ pub fn parse_at(grid: &Grid, text: &str) -> Result<Vec<f64>, Failure> {
     Ok(v)
 }
 
-/// Parse a CSV of points (header = axis names, any order) into values in axis order.
-pub fn parse_points_csv(grid: &Grid, text: &str, source: &str) -> Result<Vec<Vec<f64>>, Failure> {
-    let bad = |m: String| Failure::bad_input(anyhow::anyhow!("{source}: {m}"));
+/// A small CSV table: the header's trimmed names and the data rows as (0-based line number,
+/// text); blank lines and lines starting with '#' are skipped.
+pub type CsvRows<'a> = Vec<(usize, &'a str)>;
+
+/// Split CSV text into header names and data rows (`what` words the missing header).
+pub fn csv_table<'a>(
+    text: &'a str,
+    source: &str,
+    what: &str,
+) -> Result<(Vec<&'a str>, CsvRows<'a>), Failure> {
     let mut rows = text
         .lines()
         .enumerate()
         .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'));
     let (_, header) = rows
         .next()
-        .ok_or_else(|| bad("empty: expected a header of axis names".into()))?;
-    let names: Vec<&str> = header.split(',').map(str::trim).collect();
+        .ok_or_else(|| Failure::bad_input(anyhow::anyhow!("{source}: empty: expected {what}")))?;
+    Ok((header.split(',').map(str::trim).collect(), rows.collect()))
+}
+
+/// Parse a CSV of points (header = axis names, any order) into values in axis order.
+pub fn parse_points_csv(grid: &Grid, text: &str, source: &str) -> Result<Vec<Vec<f64>>, Failure> {
+    let bad = |m: String| Failure::bad_input(anyhow::anyhow!("{source}: {m}"));
+    let (names, rows) = csv_table(text, source, "a header of axis names")?;
     let mut cols = Vec::with_capacity(names.len());
     for (c, n) in names.iter().enumerate() {
         let a = grid
