@@ -1,6 +1,6 @@
 //! Fitting observed line strengths with grid interpolators: bound-constrained
 //! Levenberg–Marquardt (Moré 1978, "The Levenberg–Marquardt algorithm: implementation and
-//! theory", Numerical Analysis, Lecture Notes in Mathematics 630, 105–116; Marquardt's
+//! theory", Numerical Analysis, Springer LNM vol. 630, 105–116; Marquardt's
 //! diagonal scaling, steps projected onto the grid box) from several seeded starting points,
 //! with χ², reduced χ², the covariance (JᵀJ)⁻¹ in physical units and every distinct local
 //! minimum.
