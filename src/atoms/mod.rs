@@ -132,20 +132,17 @@ pub fn fnv1a_hex(text: &str) -> String {
 
 /// Roman numeral for a stage number (1 → "I").
 pub fn roman(stage: u32) -> String {
-    const R: [(u32, &str); 9] = [
+    const R: [(u32, &str); 6] = [
         (40, "XL"),
         (10, "X"),
         (9, "IX"),
         (5, "V"),
         (4, "IV"),
         (1, "I"),
-        (0, ""),
-        (0, ""),
-        (0, ""),
     ];
     let mut n = stage;
     let mut s = String::new();
-    for &(v, r) in R.iter().filter(|(v, _)| *v > 0) {
+    for &(v, r) in &R {
         while n >= v {
             s.push_str(r);
             n -= v;

@@ -116,9 +116,6 @@ impl Composition {
                     (2, None) => e.log_eps - 12.0,
                     _ => e.log_eps - 12.0 + self.metallicity,
                 };
-                if e.z == 2 && self.helium_ratio == Some(0.0) {
-                    return 0.0;
-                }
                 10f64.powf(base + offsets[i])
             })
             .collect())

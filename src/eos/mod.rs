@@ -647,7 +647,7 @@ fn hydrogen_populations(
         .map(|n| {
             let e_cm = h.excitation_wavenumber(n);
             let wn = w.w(&h, n);
-            let g = hydrogenic_weight(n);
+            let g = crate::atoms::hydrogenic::Hydrogenic::weight(n);
             LevelPopulation {
                 n,
                 energy_ev: e_cm * crate::constants::HC / EV,
@@ -658,10 +658,6 @@ fn hydrogen_populations(
             }
         })
         .collect()
-}
-
-fn hydrogenic_weight(n: u32) -> f64 {
-    crate::atoms::hydrogenic::Hydrogenic::weight(n)
 }
 
 /// From a point `from` on the near side, step downwards (first step `step`, growing by

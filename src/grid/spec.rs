@@ -41,7 +41,6 @@
 //! ```
 
 use std::collections::BTreeMap;
-use std::ops::Range;
 
 use serde::Deserialize;
 use toml::Spanned;
@@ -861,9 +860,4 @@ fn parse_values(v: &toml::Value, field: &str) -> Result<Values, String> {
     } else {
         Values::Axis(out)
     })
-}
-
-/// Spans are used for line numbers; re-exported for tests.
-pub fn line_number(text: &str, span: Range<usize>) -> usize {
-    line_of(text, span.start)
 }
