@@ -12,6 +12,7 @@ pub mod error;
 pub mod formation;
 pub mod grid;
 pub mod interp;
+pub mod nlte;
 pub mod opacity;
 pub mod transfer;
 

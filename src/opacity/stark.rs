@@ -181,7 +181,7 @@ fn golub_welsch(d: &[f64], e: &[f64], mu0: f64) -> (Vec<f64>, Vec<f64>) {
 }
 
 /// Gauss–Legendre rule on [−1, 1], nodes polished by Newton's method on P_n.
-fn gauss_legendre(n: usize) -> (Vec<f64>, Vec<f64>) {
+pub(crate) fn gauss_legendre(n: usize) -> (Vec<f64>, Vec<f64>) {
     let d = vec![0.0; n];
     let e: Vec<f64> = (1..n)
         .map(|k| {
@@ -219,7 +219,7 @@ fn legendre_with_derivative(n: usize, x: f64) -> (f64, f64) {
 /// Gauss–Laguerre rule (weight e^{−t} on [0, ∞)), nodes polished by Newton's method and
 /// weights from w_i = t_i/((n+1)² L_{n+1}(t_i)²) so that the tiny outer weights keep their
 /// relative accuracy.
-fn gauss_laguerre(n: usize) -> (Vec<f64>, Vec<f64>) {
+pub(crate) fn gauss_laguerre(n: usize) -> (Vec<f64>, Vec<f64>) {
     let d: Vec<f64> = (0..n).map(|k| 2.0 * k as f64 + 1.0).collect();
     let e: Vec<f64> = (1..n).map(|k| k as f64).collect();
     let (mut x, mut w) = golub_welsch(&d, &e, 1.0);
