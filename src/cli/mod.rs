@@ -15,6 +15,7 @@ mod audit;
 mod build;
 mod fit;
 mod info;
+mod populations;
 mod sample;
 mod slab;
 mod state;

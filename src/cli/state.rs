@@ -145,7 +145,7 @@ impl PointArgs {
 
 #[derive(Args)]
 #[command(
-    after_help = "Examples:\n  linegrid state --temperature 9500 --electron-pressure 200 --pure-hydrogen\n  linegrid state --temperature 5800 --gas-pressure 1.2e5 --metallicity -0.5 --json\n  linegrid state --temperature 20000 --hydrogen-density 1e15 --elements H,He --cutoff debye"
+    after_help = "Examples:\n  linegrid state --temperature 9500 --electron-pressure 200 --pure-hydrogen\n  linegrid state --temperature 5800 --gas-pressure 1.2e5 --metallicity -0.5 --json\n  linegrid state --temperature 20000 --hydrogen-density 1e15 --elements H,He --cutoff debye\n  linegrid state --temperature 8000 --hydrogen-density 1e11 --populations cr --thickness 1e8"
 )]
 pub struct StateArgs {
     #[command(flatten)]
@@ -153,20 +153,95 @@ pub struct StateArgs {
     /// Number of hydrogen shells to list (1 to 1000)
     #[arg(long, default_value_t = 20, value_name = "N")]
     levels: u32,
+    #[command(flatten)]
+    populations: super::populations::PopulationArgs,
+    /// With --populations cr: line escape from a slab of this thickness, cm (default: all lines optically thin)
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "CM",
+        conflicts_with = "hydrogen_column"
+    )]
+    thickness: Option<f64>,
+    /// With --populations cr: line escape from a slab of this hydrogen column, cm^-2
+    #[arg(long, allow_negative_numbers = true, value_name = "CM-2")]
+    hydrogen_column: Option<f64>,
+    /// With --populations cr: microturbulence for the line escape, km/s
+    #[arg(
+        long,
+        default_value_t = 2.0,
+        allow_negative_numbers = true,
+        value_name = "KM/S"
+    )]
+    microturbulence: f64,
     /// Print JSON (field names are stable; see README)
     #[arg(long)]
     json: bool,
 }
 
+/// The escape of the collisional-radiative model in `state` and its description.
+fn state_escape(a: &StateArgs, s: &State) -> Result<(linegrid::nlte::Escape, String), Failure> {
+    use linegrid::nlte::Escape;
+    let micro = a.microturbulence;
+    if !(micro.is_finite() && (0.0..1000.0).contains(&micro)) {
+        return Err(Failure::bad_input(anyhow::anyhow!(
+            "invalid --microturbulence = {micro}: must be between 0 and 1000 km/s"
+        )));
+    }
+    let thickness = match (a.thickness, a.hydrogen_column) {
+        (Some(l), _) => Some((l, format!("slab of {l:e} cm"))),
+        (_, Some(n)) => Some((
+            n / s.hydrogen_density,
+            format!("slab of hydrogen column {n:e} cm^-2"),
+        )),
+        _ => None,
+    };
+    Ok(match thickness {
+        None => (Escape::Thin, "optically thin lines".into()),
+        Some((l, what)) => (
+            Escape::Slab {
+                thickness: l,
+                microturbulence: micro * 1e5,
+            },
+            what,
+        ),
+    })
+}
+
 pub fn run(a: StateArgs) -> Result<(), Failure> {
     let req = a.point.request(a.levels)?;
+    let cr = a.populations.settings()?;
+    if cr.is_none() && (a.thickness.is_some() || a.hydrogen_column.is_some()) {
+        return Err(Failure::bad_input(anyhow::anyhow!(
+            "--thickness and --hydrogen-column apply to `state` only with --populations cr"
+        )));
+    }
     let data = AtomicData::embedded();
     match eos::solve_with(data, &req) {
         Ok(s) => {
+            let cr_part = match &cr {
+                None => None,
+                Some(c) => {
+                    let (escape, what) = state_escape(&a, &s)?;
+                    let sol =
+                        linegrid::formation::departures::solve_with_escape(data, &s, c, escape)
+                            .map_err(super::populations::cr_failure)?;
+                    Some((c, what, sol))
+                }
+            };
             if a.json {
-                print_json(&state_json(data, &req, &s))
+                let mut v = state_json(data, &req, &s);
+                if let Some((c, what, sol)) = &cr_part {
+                    v["collisional_radiative"] = super::populations::cr_json(c, what, sol);
+                }
+                print_json(&v)
             } else {
-                super::emit(&state_text(data, &req, &s))
+                let mut text = state_text(data, &req, &s);
+                if let Some((c, what, sol)) = &cr_part {
+                    text.push('\n');
+                    text.push_str(&super::populations::cr_text(c, what, sol));
+                }
+                super::emit(&text)
             }
         }
         Err(StateError::Input(e)) => Err(Failure::from_lib(e)),

@@ -27,6 +27,7 @@
 //! hydrogen lines is not included (the cores of lines with unshifted components, e.g. Hα,
 //! come out too narrow at high density).
 
+pub mod departures;
 pub mod growth;
 
 use crate::atoms::AtomicData;
@@ -535,7 +536,7 @@ pub fn line_strength(
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
 /// central value: bracketed by doubling, then refined by the Illinois variant of false
 /// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
-fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
+pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
     }

@@ -21,6 +21,12 @@ pub mod status {
     pub const INVALID_INPUT: u8 = 4;
     /// The slab computation failed.
     pub const SLAB_FAILED: u8 = 5;
+    /// Collisional–radiative populations: iteration limit.
+    pub const CR_ITERATION_LIMIT: u8 = 6;
+    /// Collisional–radiative populations: singular rate matrix.
+    pub const CR_SINGULAR: u8 = 7;
+    /// Collisional–radiative populations: a non-finite rate or population.
+    pub const CR_NON_FINITE: u8 = 8;
     /// Not computed yet.
     pub const NOT_COMPUTED: u8 = 255;
 
@@ -33,6 +39,9 @@ pub mod status {
             (DENSITY_OUT_OF_RANGE, "implied_density_out_of_range".into()),
             (INVALID_INPUT, "invalid_input".into()),
             (SLAB_FAILED, "slab_failed".into()),
+            (CR_ITERATION_LIMIT, "cr_iteration_limit".into()),
+            (CR_SINGULAR, "cr_singular_matrix".into()),
+            (CR_NON_FINITE, "cr_non_finite".into()),
             (NOT_COMPUTED, "not_computed".into()),
         ]
     }
@@ -116,6 +125,16 @@ pub fn quantities(plan: &Plan) -> Vec<Quantity> {
             false,
         ));
     }
+    if let Some(levels) = plan.spec.physics.cr_levels {
+        for n in 1..=levels {
+            v.push(q(
+                &format!("departure_{n}"),
+                "1",
+                &format!("departure coefficient b_{n} of hydrogen shell n = {n}"),
+                false,
+            ));
+        }
+    }
     v
 }
 
@@ -175,11 +194,35 @@ fn evaluate_inputs(
             });
         }
     };
+    let departures = match &inputs.populations {
+        None => None,
+        Some(cr) => match formation::departures::solve_departures(data, &state, &inputs.slab, cr) {
+            Ok(sol) => Some(sol),
+            Err(crate::nlte::CrError::Invalid { .. }) => return nan(status::INVALID_INPUT),
+            Err(crate::nlte::CrError::NotConverged { reason, .. }) => {
+                return nan(match reason {
+                    crate::nlte::CrFailure::IterationLimit => status::CR_ITERATION_LIMIT,
+                    crate::nlte::CrFailure::Singular => status::CR_SINGULAR,
+                    crate::nlte::CrFailure::NonFinite => status::CR_NON_FINITE,
+                });
+            }
+        },
+    };
     let lines: Vec<&crate::atoms::lines::Line> = plan.lines.iter().collect();
-    let strengths = match formation::line_strengths(data, &state, &inputs.slab, &lines) {
+    let strengths = match formation::departures::line_strengths_with(
+        data,
+        &state,
+        &inputs.slab,
+        &lines,
+        departures.as_ref(),
+    ) {
         Ok(s) => s,
         Err(_) => return nan(status::SLAB_FAILED),
     };
+    // With collisional–radiative hydrogen, n_e and hydrogen's ionisation are its own.
+    let electron_density = departures
+        .as_ref()
+        .map_or(state.electron_density, |d| d.electron_density);
     let species = line_species(plan);
     let mut values = Vec::with_capacity(quantities.len());
     for q in quantities {
@@ -196,12 +239,33 @@ fn evaluate_inputs(
             "tau0" => strengths.iter().map(|s| s.tau0).collect(),
             "fwhm" => strengths.iter().map(|s| s.fwhm_angstrom).collect(),
             "lower_column" => strengths.iter().map(|s| s.lower_column).collect(),
-            "electron_density" => vec![state.electron_density],
+            "electron_density" => vec![electron_density],
             "gas_pressure" => vec![state.gas_pressure],
             "hydrogen_density" => vec![state.hydrogen_density],
             "mass_density" => vec![state.mass_density],
+            other if other.starts_with("departure_") => {
+                let n: usize = other["departure_".len()..].parse().expect("own name");
+                vec![
+                    departures
+                        .as_ref()
+                        .map_or(f64::NAN, |d| d.levels[n - 1].departure),
+                ]
+            }
             other => {
                 let name = other.trim_start_matches("fraction_").replace('_', " ");
+                if let Some(d) = &departures {
+                    match name.as_str() {
+                        "H I" => {
+                            values.push(vec![1.0 - d.ionised_fraction]);
+                            continue;
+                        }
+                        "H II" => {
+                            values.push(vec![d.ionised_fraction]);
+                            continue;
+                        }
+                        _ => {}
+                    }
+                }
                 let k = species
                     .iter()
                     .find(|s| **s == name)

@@ -6,7 +6,9 @@ use crate::atoms::AtomicData;
 use crate::atoms::lines::{Catalogue, Line, Selection, read_csv};
 use crate::eos::occupation::LevelCutoff;
 use crate::eos::{Composition, Density, EosOptions, StateRequest};
+use crate::formation::departures::CrSettings;
 use crate::formation::{Background, Geometry, SlabOptions, View};
+use crate::nlte::RadiationField;
 
 use super::spec::{ParamKind, Parameter, Spec, SpecError, Values};
 
@@ -41,6 +43,8 @@ pub struct PointInputs {
     pub state: StateRequest,
     /// Slab options.
     pub slab: SlabOptions,
+    /// Collisional–radiative hydrogen populations (`None`: LTE).
+    pub populations: Option<CrSettings>,
 }
 
 impl Plan {
@@ -303,6 +307,14 @@ impl Plan {
                 continuum: self.spec.physics.continuum,
                 damping: self.spec.physics.damping,
             },
+            populations: self.spec.physics.cr_levels.map(|levels| CrSettings {
+                levels,
+                field: RadiationField {
+                    dilution: v(ParamKind::Dilution).unwrap_or(0.0),
+                    temperature: v(ParamKind::RadiationTemperature).unwrap_or(1.0e4),
+                },
+                case_b: self.spec.physics.case_b,
+            }),
         }
     }
 

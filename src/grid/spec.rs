@@ -32,7 +32,11 @@
 //! continuum = true
 //! cutoff = "occupation-probability"   # or "debye", or "hard" (shells n <= max_shell)
 //! max_shell = 30                      # only with cutoff = "hard" (default 30)
-//! populations = "lte"
+//! populations = "lte"                # or "cr": collisional-radiative hydrogen (departure
+//!                                     # coefficients stored); then also
+//! # cr_levels = 20                    # bundled shells (2-70)
+//! # case_b = false                    # Lyman lines thick, no recombination to n = 1
+//! # and in [parameters]: dilution = 0.0 (W, fixed or axis), radiation_temperature = 1e4 (K)
 //! mu = 1.0                            # measure in intensity at this mu (default: flux)
 //! elements = ["H"]                    # restrict the mixture (must include H; default: all)
 //! damping = { radiative = 1e8, stark_coefficient = 1e-5 }
@@ -111,6 +115,9 @@ struct RawPhysics {
     max_shell: Option<u32>,
     elements: Option<Vec<String>>,
     damping: Option<RawDamping>,
+    cr_levels: Option<u32>,
+    #[serde(default)]
+    case_b: bool,
 }
 
 #[derive(Debug, Clone, Copy, Deserialize)]
@@ -130,6 +137,8 @@ impl Default for RawPhysics {
             max_shell: None,
             elements: None,
             damping: None,
+            cr_levels: None,
+            case_b: false,
         }
     }
 }
@@ -190,6 +199,10 @@ pub enum ParamKind {
     BackgroundTemperature,
     /// T_bg/T.
     BackgroundRatio,
+    /// Dilution W of the external radiation field (collisional–radiative populations only).
+    Dilution,
+    /// K (collisional–radiative populations only).
+    RadiationTemperature,
 }
 
 impl ParamKind {
@@ -208,17 +221,21 @@ impl ParamKind {
             ParamKind::HydrogenColumn => "hydrogen_column",
             ParamKind::BackgroundTemperature => "background_temperature",
             ParamKind::BackgroundRatio => "background_ratio",
+            ParamKind::Dilution => "dilution",
+            ParamKind::RadiationTemperature => "radiation_temperature",
         }
     }
 
     /// Units, as stored in the grid file.
     pub fn units(&self) -> &'static str {
         match self {
-            ParamKind::Temperature | ParamKind::BackgroundTemperature => "K",
+            ParamKind::Temperature
+            | ParamKind::BackgroundTemperature
+            | ParamKind::RadiationTemperature => "K",
             ParamKind::HydrogenDensity | ParamKind::ElectronDensity => "cm-3",
             ParamKind::GasPressure | ParamKind::ElectronPressure => "dyn cm-2",
             ParamKind::Metallicity => "dex",
-            ParamKind::HeliumRatio | ParamKind::BackgroundRatio => "1",
+            ParamKind::HeliumRatio | ParamKind::BackgroundRatio | ParamKind::Dilution => "1",
             ParamKind::Microturbulence => "km s-1",
             ParamKind::Thickness => "cm",
             ParamKind::HydrogenColumn => "cm-2",
@@ -240,6 +257,8 @@ impl ParamKind {
             ParamKind::HydrogenColumn => "hydrogen column density",
             ParamKind::BackgroundTemperature => "background Planck temperature",
             ParamKind::BackgroundRatio => "background to slab temperature ratio",
+            ParamKind::Dilution => "dilution factor of the external radiation field",
+            ParamKind::RadiationTemperature => "temperature of the external radiation field",
         }
     }
 
@@ -260,6 +279,8 @@ impl ParamKind {
             ParamKind::HydrogenColumn => (1e-10, 1e35, "a positive column in cm^-2"),
             ParamKind::BackgroundTemperature => (1.0, 1e7, "between 1 and 1e7 K"),
             ParamKind::BackgroundRatio => (1e-3, 1e3, "between 0.001 and 1000"),
+            ParamKind::Dilution => (0.0, 1.0, "between 0 and 1"),
+            ParamKind::RadiationTemperature => (1.0, 1e7, "between 1 and 1e7 K"),
         }
     }
 
@@ -278,6 +299,8 @@ impl ParamKind {
             HydrogenColumn,
             BackgroundTemperature,
             BackgroundRatio,
+            Dilution,
+            RadiationTemperature,
         ]
         .into_iter()
         .find(|p| p.key() == k)
@@ -340,8 +363,12 @@ pub struct PhysicsSpec {
     pub cutoff: String,
     /// Highest hydrogen-like shell counted with `cutoff = "hard"`.
     pub max_shell: Option<u32>,
-    /// Populations model: "lte".
+    /// Populations model: "lte" or "cr" (collisional–radiative hydrogen).
     pub populations: String,
+    /// Shells of the collisional–radiative model (with `populations = "cr"`).
+    pub cr_levels: Option<u32>,
+    /// Case B in the collisional–radiative model.
+    pub case_b: bool,
     /// Intensity at μ instead of flux.
     pub mu: Option<f64>,
     /// Only these elements (symbols, must include H); `None`: every element of the table.
@@ -508,7 +535,7 @@ impl Spec {
                 return Err(err(
                     line,
                     &field,
-                    "unknown parameter; known: temperature, hydrogen_density, gas_pressure, electron_density, electron_pressure, metallicity, helium_ratio, microturbulence, thickness, hydrogen_column, background_temperature, background_ratio, background, offsets".into(),
+                    "unknown parameter; known: temperature, hydrogen_density, gas_pressure, electron_density, electron_pressure, metallicity, helium_ratio, microturbulence, thickness, hydrogen_column, background_temperature, background_ratio, background, dilution, radiation_temperature, offsets".into(),
                 ));
             };
             let vals = parse_values(value.get_ref(), &field).map_err(|m| err(line, &field, m))?;
@@ -696,12 +723,73 @@ impl Spec {
                 }
             }
         }
-        if p.populations != "lte" {
+        if !["lte", "cr"].contains(&p.populations.as_str()) {
             return Err(err(
                 line_of_key(text, "populations"),
                 "physics.populations",
-                format!("'{}': only \"lte\" is available", p.populations),
+                format!(
+                    "'{}': use \"lte\" or \"cr\" (collisional-radiative hydrogen)",
+                    p.populations
+                ),
             ));
+        }
+        let cr = p.populations == "cr";
+        let cr_levels = match (cr, p.cr_levels) {
+            (true, m) => {
+                let m = m.unwrap_or(crate::nlte::DEFAULT_LEVELS);
+                if !(2..=crate::nlte::MAX_LEVELS).contains(&m) {
+                    return Err(err(
+                        line_of_key(text, "cr_levels"),
+                        "physics.cr_levels",
+                        format!("{m}: must be between 2 and {}", crate::nlte::MAX_LEVELS),
+                    ));
+                }
+                Some(m)
+            }
+            (false, Some(_)) => {
+                return Err(err(
+                    line_of_key(text, "cr_levels"),
+                    "physics.cr_levels",
+                    "cr_levels applies only with populations = \"cr\"".into(),
+                ));
+            }
+            (false, None) => None,
+        };
+        if p.case_b && !cr {
+            return Err(err(
+                line_of_key(text, "case_b"),
+                "physics.case_b",
+                "case_b applies only with populations = \"cr\"".into(),
+            ));
+        }
+        if !cr && count_kinds(&params, &[Dilution, RadiationTemperature]) > 0 {
+            let key = if count_kinds(&params, &[Dilution]) > 0 {
+                "dilution"
+            } else {
+                "radiation_temperature"
+            };
+            return Err(err(
+                line_of_key(text, key),
+                &format!("parameters.{key}"),
+                "the external radiation field applies only with populations = \"cr\" in [physics]"
+                    .into(),
+            ));
+        }
+        if cr
+            && count_kinds(&params, &[Dilution]) == 1
+            && count_kinds(&params, &[RadiationTemperature]) == 0
+        {
+            let w_positive = params
+                .iter()
+                .find(|p| p.kind == Some(Dilution))
+                .is_some_and(|p| p.values.values().iter().any(|&w| w > 0.0));
+            if w_positive {
+                return Err(err(
+                    line_of_key(text, "dilution"),
+                    "parameters.dilution",
+                    "a dilution above 0 needs radiation_temperature (K) as well".into(),
+                ));
+            }
         }
         if let Some(mu) = p.mu
             && !(mu > 0.0 && mu <= 1.0)
@@ -732,6 +820,8 @@ impl Spec {
                 cutoff: p.cutoff,
                 max_shell,
                 populations: p.populations,
+                cr_levels,
+                case_b: p.case_b,
                 mu: p.mu,
                 elements: p.elements,
                 damping: p.damping.map(|d| crate::formation::DampingOverride {
@@ -763,6 +853,14 @@ impl Spec {
     pub fn digest(&self) -> String {
         crate::atoms::fnv1a_hex(&self.text)
     }
+}
+
+/// Number of parameters of the given kinds.
+fn count_kinds(params: &[Parameter], kinds: &[ParamKind]) -> usize {
+    params
+        .iter()
+        .filter(|p| p.kind.is_some_and(|k| kinds.contains(&k)))
+        .count()
 }
 
 /// Parse a parameter value: a number, `{ values = [...] }`, `{ linear = [a, b, n] }` or
