@@ -135,6 +135,8 @@ pub struct SlabArgs {
     no_continuum: bool,
     #[command(flatten)]
     lines: LineArgs,
+    #[command(flatten)]
+    populations: super::populations::PopulationArgs,
     /// Print JSON
     #[arg(long)]
     json: bool,
@@ -178,8 +180,23 @@ pub fn slab(a: SlabArgs) -> Result<(), Failure> {
     } else {
         named
     };
-    let strengths =
-        formation::line_strengths(data, &state, &opts, &present).map_err(slab_failure)?;
+    let cr = a.populations.settings()?;
+    let cr_solution = match &cr {
+        None => None,
+        Some(c) => Some(
+            formation::departures::solve_departures(data, &state, &opts, c)
+                .map_err(super::populations::cr_failure)?,
+        ),
+    };
+    let strengths = formation::departures::line_strengths_with(
+        data,
+        &state,
+        &opts,
+        &present,
+        cr_solution.as_ref(),
+    )
+    .map_err(slab_failure)?;
+    let escape = format!("this slab ({:e} cm)", opts.thickness(&state));
     let gas = formation::continuum_gas(data, &state);
     if a.json {
         let mut state_v = super::state::state_json(data, &req, &state);
@@ -194,13 +211,17 @@ pub fn slab(a: SlabArgs) -> Result<(), Failure> {
                        "ion_ff": c.ion_ff, "thomson": c.thomson, "rayleigh": c.rayleigh, "total": c.total()})
             })
             .collect();
-        return print_json(&json!({
+        let mut v = json!({
             "state": state_v,
             "slab": {"thickness_cm": opts.thickness(&state), "options": opts},
             "continuum_opacity_cm-1": conts,
             "lines": strengths,
             "mean_evaluations_per_line": mean_evals(&strengths),
-        }));
+        });
+        if let (Some(c), Some(sol)) = (&cr, &cr_solution) {
+            v["collisional_radiative"] = super::populations::cr_json(c, &escape, sol);
+        }
+        return print_json(&v);
     }
     let mut o = String::new();
     outln!(
@@ -254,6 +275,10 @@ pub fn slab(a: SlabArgs) -> Result<(), Failure> {
         "mean profile evaluations per line: {:.1}",
         mean_evals(&strengths)
     );
+    if let (Some(c), Some(sol)) = (&cr, &cr_solution) {
+        outln!(o);
+        o.push_str(&super::populations::cr_text(c, &escape, sol));
+    }
     emit(&o)
 }
 

@@ -71,7 +71,18 @@ pub fn physics_json(plan: &Plan) -> String {
         "continuum": plan.spec.physics.continuum,
         "view": plan.spec.physics.mu.map_or("flux".to_string(), |m| format!("intensity at mu = {m}")),
         "background": if plan.spec.has_background { "planck" } else { "none" },
-        "source_function": "LTE Planck, scattering treated as absorption",
+        "source_function": if plan.spec.physics.cr_levels.is_some() {
+            "hydrogen lines: from the departure coefficients; continuum and other lines: LTE Planck; scattering treated as absorption"
+        } else {
+            "LTE Planck, scattering treated as absorption"
+        },
+        "collisional_radiative": plan.spec.physics.cr_levels.map(|n| serde_json::json!({
+            "shells": n,
+            "case_b": plan.spec.physics.case_b,
+            "escape": "slab escape probability (1 - exp(-3 tau))/(3 tau) from the Doppler-core line-centre optical depth",
+            "collision_rates": "Vriens & Smeets 1980",
+            "metals": "LTE at the LTE electron density",
+        })),
         "fixed_parameters": plan.fixed.iter().map(|p| (p.name.clone(), p.values.values()[0])).collect::<std::collections::BTreeMap<_, _>>(),
     })
     .to_string()
