@@ -13,6 +13,7 @@ pub mod formation;
 pub mod grid;
 pub mod interp;
 pub mod opacity;
+pub mod plot;
 pub mod transfer;
 
 pub use error::{Error, Result};
