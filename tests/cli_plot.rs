@@ -477,14 +477,35 @@ fn bad_input_exits_2_and_writes_nothing() {
     std::fs::write(&bad_table, "n_e,b_1,b_2\n1e10,1,1\n1e11,1,oops\n").unwrap();
     let bad_json = tmp.path().join("bad.json");
     std::fs::write(&bad_json, "{\"n_e\": [1e10], \"b\": [[1]]}").unwrap();
-    let out = |extra: &[&'static str]| -> Vec<String> {
-        let mut v: Vec<String> = extra.iter().map(|s| s.to_string()).collect();
+    // `plot KIND [ARGS…] EXTRA… -o x.png --data x.csv`
+    let cmd = |head: &[&str], extra: &[&str]| -> Vec<String> {
+        let mut v: Vec<String> = ["plot"].iter().chain(head).map(|s| s.to_string()).collect();
+        v.extend(extra.iter().map(|s| s.to_string()));
         v.extend(["-o".into(), p.into(), "--data".into(), c.into()]);
         v
     };
-    let strength = |extra: &[&'static str]| -> Vec<String> {
-        let mut v = vec!["plot".to_string(), "strength".into(), g.into()];
-        v.extend(out(extra));
+    let strength = |extra: &[&str]| cmd(&["strength", g], extra);
+    let slab = [
+        "--line",
+        "H-alpha",
+        "--temperature",
+        "9500",
+        "--gas-pressure",
+        "1e4",
+        "--thickness",
+        "1e7",
+    ];
+    let profile = |extra: &[&str]| {
+        let mut e: Vec<&str> = slab.to_vec();
+        e.extend(extra);
+        cmd(&["profile"], &e)
+    };
+    let only_output = |path: PathBuf| -> Vec<String> {
+        let mut v: Vec<String> = ["plot", "strength", g, "--lines", "H-alpha", "-o"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+        v.push(path.to_str().unwrap().into());
         v
     };
     let cases: Vec<(Vec<String>, &str)> = vec![
@@ -532,133 +553,47 @@ fn bad_input_exits_2_and_writes_nothing() {
             "picture size",
         ),
         (
-            {
-                let mut v: Vec<String> = ["plot", "strength", not_grid.to_str().unwrap()]
-                    .iter()
-                    .map(|s| s.to_string())
-                    .collect();
-                v.extend(out(&["--lines", "H-alpha"]));
-                v
-            },
+            cmd(
+                &["strength", not_grid.to_str().unwrap()],
+                &["--lines", "H-alpha"],
+            ),
             "not.h5",
         ),
+        (only_output(dir.join("x.jpg")), ".png or .svg"),
+        (only_output(dir.join("missing/x.png")), "does not exist"),
         (
-            vec![
-                "plot".into(),
-                "strength".into(),
-                g.into(),
-                "--lines".into(),
-                "H-alpha".into(),
-                "-o".into(),
-                dir.join("x.jpg").to_str().unwrap().into(),
-            ],
-            ".png or .svg",
-        ),
-        (
-            vec![
-                "plot".into(),
-                "strength".into(),
-                g.into(),
-                "--lines".into(),
-                "H-alpha".into(),
-                "-o".into(),
-                dir.join("missing/x.png").to_str().unwrap().into(),
-            ],
-            "does not exist",
-        ),
-        (
-            {
-                let mut v = vec!["plot".to_string(), "growth".into()];
-                v.extend(out(&[
+            cmd(
+                &["growth"],
+                &[
                     "--line",
                     "Ca II Q",
                     "--temperature",
                     "9500",
                     "--gas-pressure",
                     "1e4",
-                ]));
-                v
-            },
+                ],
+            ),
             "Ca II Q",
         ),
         (
-            {
-                let mut v = vec!["plot".to_string(), "profile".into()];
-                v.extend(out(&[
-                    "--line",
-                    "H-alpha",
-                    "--temperature",
-                    "9500",
-                    "--gas-pressure",
-                    "1e4",
-                    "--thickness",
-                    "1e7",
-                    "--background-temperature",
-                    "11400",
-                    "--span",
-                    "-3",
-                ]));
-                v
-            },
+            profile(&["--background-temperature", "11400", "--span", "-3"]),
             "--span",
         ),
         (
-            {
-                let mut v = vec!["plot".to_string(), "profile".into()];
-                v.extend(out(&[
-                    "--line",
-                    "H-alpha",
-                    "--temperature",
-                    "9500",
-                    "--gas-pressure",
-                    "1e4",
-                    "--thickness",
-                    "1e7",
-                    "--no-background",
-                    "--no-continuum",
-                ]));
-                v
-            },
+            profile(&["--no-background", "--no-continuum"]),
             "needs a continuum",
         ),
         (
-            {
-                let mut v = vec!["plot".to_string(), "audit".into(), g.into()];
-                v.extend(out(&["--x", "temperature", "--y", "temperature"]));
-                v
-            },
+            cmd(&["audit", g], &["--x", "temperature", "--y", "temperature"]),
             "both name",
         ),
+        (cmd(&["audit", g], &["--line", "Fe I 9999"]), "Fe I 9999"),
         (
-            {
-                let mut v = vec!["plot".to_string(), "audit".into(), g.into()];
-                v.extend(out(&["--line", "Fe I 9999"]));
-                v
-            },
-            "Fe I 9999",
-        ),
-        (
-            {
-                let mut v = vec![
-                    "plot".to_string(),
-                    "departure".into(),
-                    bad_table.to_str().unwrap().into(),
-                ];
-                v.extend(out(&[]));
-                v
-            },
+            cmd(&["departure", bad_table.to_str().unwrap()], &[]),
             "line 3, column 'b_2'",
         ),
         (
-            {
-                let mut v = vec![
-                    "plot".to_string(),
-                    "departure".into(),
-                    bad_json.to_str().unwrap().into(),
-                ];
-                v.extend(out(&[]));
-                v
-            },
+            cmd(&["departure", bad_json.to_str().unwrap()], &[]),
             "levels",
         ),
     ];

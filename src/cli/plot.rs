@@ -441,16 +441,7 @@ fn profile(a: ProfileArgs) -> Result<(), Failure> {
         )));
     }
     let opts = a.setup.options()?;
-    let la = LineArgs {
-        lines: vec![a.line.clone()],
-        species: vec![],
-        family: vec![],
-        min_wavelength: None,
-        max_wavelength: None,
-        line_list: a.line_list.clone(),
-    };
-    let cat = la.catalogue()?;
-    let line = la.select(&cat)?.remove(0);
+    let line = LineArgs::one(&a.line, a.line_list.clone())?;
     let (_, state) = a.point.solve(20)?;
     let data = AtomicData::embedded();
     let st = formation::line_strength(data, &state, &opts, &line).map_err(slab_failure)?;

@@ -37,6 +37,20 @@ pub struct LineArgs {
 }
 
 impl LineArgs {
+    /// The one line `label` (from the catalogue plus an optional user file).
+    pub fn one(label: &str, line_list: Option<std::path::PathBuf>) -> Result<Line, Failure> {
+        let la = LineArgs {
+            lines: vec![label.to_string()],
+            species: vec![],
+            family: vec![],
+            min_wavelength: None,
+            max_wavelength: None,
+            line_list,
+        };
+        let cat = la.catalogue()?;
+        Ok(la.select(&cat)?.remove(0))
+    }
+
     /// The catalogue (built-in plus the user's file).
     pub fn catalogue(&self) -> Result<Catalogue, Failure> {
         let mut cat = Catalogue::embedded().clone();
@@ -356,16 +370,7 @@ impl GrowthCurveArgs {
     /// Compute the curve.
     pub fn compute(&self) -> Result<GrowthCurve, Failure> {
         let a = self;
-        let la = LineArgs {
-            lines: vec![a.line.clone()],
-            species: vec![],
-            family: vec![],
-            min_wavelength: None,
-            max_wavelength: None,
-            line_list: a.line_list.clone(),
-        };
-        let cat = la.catalogue()?;
-        let line = la.select(&cat)?.remove(0);
+        let line = LineArgs::one(&a.line, a.line_list.clone())?;
         if !(a.min_log_column.is_finite()
             && a.max_log_column.is_finite()
             && a.min_log_column < a.max_log_column)

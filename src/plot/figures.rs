@@ -468,7 +468,7 @@ pub fn growth_chart(info: &GrowthInfo, points: &[GrowthPoint]) -> LineChart {
             info.label,
             number_text((info.wavelength_angstrom * 1000.0).round() / 1000.0)
         ),
-        x: Axis::new("N f λ (cm⁻² · cm)", true),
+        x: Axis::new("N f λ (cm⁻¹: N in cm⁻², λ in cm)", true),
         y: Axis::new("equivalent width W_λ (Å)", true),
         series,
         regions,

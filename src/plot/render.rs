@@ -29,8 +29,12 @@ fn rgb(c: Rgb) -> RGBColor {
     RGBColor(c.0, c.1, c.2)
 }
 
+/// A text style of about `size` pixels, rounded to an even number: the glyph placement of the
+/// drawing library truncates half the size plus each glyph's (whole-pixel) top, which keeps
+/// all glyphs on one baseline only when half the size is whole.
 fn font(size: f64) -> TextStyle<'static> {
-    TextStyle::from((FAMILY, size).into_font()).color(&BLACK)
+    let even = (2.0 * (size / 2.0).round()).max(6.0);
+    TextStyle::from((FAMILY, even).into_font()).color(&BLACK)
 }
 
 type Res<T> = Result<T, PlotError>;
@@ -230,6 +234,12 @@ fn ticks(lo: f64, hi: f64, log: bool, n: f64) -> (Vec<(f64, String)>, Vec<f64>) 
             major.push((k, label_number(10f64.powf(k))));
             k += every;
         }
+        // One style per axis: if any decade needs a power of ten, write them all so.
+        if major.iter().any(|(_, s)| !s.is_ascii()) {
+            for (k, s) in &mut major {
+                *s = format!("10{}", superscript(k.round() as i32));
+            }
+        }
         if every <= 1.0 {
             let mut d = lo.floor();
             while d <= hi {
@@ -243,16 +253,31 @@ fn ticks(lo: f64, hi: f64, log: bool, n: f64) -> (Vec<(f64, String)>, Vec<f64>) 
             }
         }
     } else if log {
-        // About a decade or less: 1…9 × 10^k (overlapping labels are dropped when drawn).
+        // About a decade or less: 1, 2, 3, 5 × 10^k labelled when that gives four ticks,
+        // else every 1…9 × 10^k (overlapping labels are dropped when drawn); the rest minor.
+        let mut round = Vec::new();
+        let mut all = Vec::new();
         let mut d = lo.floor();
         while d <= hi {
             for m in 1..10 {
                 let u = d + f64::from(m).log10();
                 if u >= lo - eps && u <= hi + eps {
-                    major.push((u, label_number(10f64.powf(d) * f64::from(m))));
+                    let t = (u, label_number(10f64.powf(d) * f64::from(m)));
+                    if [1, 2, 3, 5].contains(&m) {
+                        round.push(t.clone());
+                    } else {
+                        minor.push(u);
+                    }
+                    all.push(t);
                 }
             }
             d += 1.0;
+        }
+        if round.len() >= 4 {
+            major = round;
+        } else {
+            major = all;
+            minor.clear();
         }
     } else {
         let step = nice_step(hi - lo, n);
@@ -504,6 +529,13 @@ fn text_width<DB: DrawingBackend>(
         .unwrap_or(8 * s.chars().count() as i32)
 }
 
+/// The black frame around the plotting rectangle.
+fn draw_frame<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, plot: &Plot) -> Res<()> {
+    let (l, t, r, b) = (plot.left, plot.top, plot.right, plot.bottom);
+    let corners = vec![(l, t), (r, t), (r, b), (l, b), (l, t)];
+    draw_polyline(root, corners, Rgb(0, 0, 0), 1, Dash::Solid)
+}
+
 /// Frame, grid lines, ticks, tick labels and axis labels. Returns the plotting rectangle.
 #[allow(clippy::too_many_arguments)]
 fn draw_axes<DB: DrawingBackend>(
@@ -516,8 +548,8 @@ fn draw_axes<DB: DrawingBackend>(
     grid: bool,
 ) -> Res<Plot> {
     let (w, h) = root.dim_in_pixel();
+    let scale = text_scale(w, h);
     let (w, h) = (w as i32, h as i32);
-    let scale = (f64::from(h.min(w * 3 / 4)) / 600.0).clamp(0.6, 3.0);
     let title_font = font(20.0 * scale);
     let label_font = font(16.0 * scale);
     let tick_font = font(13.5 * scale);
@@ -634,19 +666,7 @@ fn draw_axes<DB: DrawingBackend>(
             (plot.left - tick - 4, py),
         )?;
     }
-    draw_polyline(
-        root,
-        vec![
-            (plot.left, plot.top),
-            (plot.right, plot.top),
-            (plot.right, plot.bottom),
-            (plot.left, plot.bottom),
-            (plot.left, plot.top),
-        ],
-        black,
-        1,
-        Dash::Solid,
-    )?;
+    draw_frame(root, &plot)?;
     text(
         root,
         x_label,
@@ -678,14 +698,23 @@ fn legend_sample<DB: DrawingBackend>(
     Ok(())
 }
 
+/// White canvas; its width and the text scale (1 at 800×600).
+fn begin<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>) -> Res<(u32, f64)> {
+    root.fill(&WHITE).map_err(draw_err)?;
+    let (w, h) = root.dim_in_pixel();
+    Ok((w, text_scale(w, h)))
+}
+
+fn text_scale(w: u32, h: u32) -> f64 {
+    (f64::from(h.min(w * 3 / 4)) / 600.0).clamp(0.6, 3.0)
+}
+
 fn draw_chart<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     c: &LineChart,
     f: &Frame,
 ) -> Res<()> {
-    root.fill(&WHITE).map_err(draw_err)?;
-    let (w, h) = root.dim_in_pixel();
-    let scale = (f64::from(h.min(w * 3 / 4)) / 600.0).clamp(0.6, 3.0);
+    let (w, scale) = begin(root)?;
     let legend_font = font(13.0 * scale);
     let note_font = font(11.5 * scale).color(&RGBColor(0x40, 0x40, 0x40));
     let sample_len = (44.0 * scale) as i32;
@@ -790,9 +819,7 @@ fn draw_heatmap<DB: DrawingBackend>(
     m: &HeatMap,
     f: &Frame,
 ) -> Res<()> {
-    root.fill(&WHITE).map_err(draw_err)?;
-    let (w, h) = root.dim_in_pixel();
-    let scale = (f64::from(h.min(w * 3 / 4)) / 600.0).clamp(0.6, 3.0);
+    let (w, scale) = begin(root)?;
     let note_font = font(11.5 * scale).color(&RGBColor(0x40, 0x40, 0x40));
     let vals: Vec<f64> = m
         .values
@@ -876,19 +903,7 @@ fn draw_heatmap<DB: DrawingBackend>(
             Dash::Solid,
         )?;
     }
-    draw_polyline(
-        root,
-        vec![
-            (plot.left, plot.top),
-            (plot.right, plot.top),
-            (plot.right, plot.bottom),
-            (plot.left, plot.bottom),
-            (plot.left, plot.top),
-        ],
-        Rgb(0, 0, 0),
-        1,
-        Dash::Solid,
-    )?;
+    draw_frame(root, &plot)?;
     // Colour bar.
     let bx = plot.right + (18.0 * scale) as i32;
     let (bt, bb) = (
