@@ -14,6 +14,7 @@ pub mod grid;
 pub mod interp;
 pub mod nlte;
 pub mod opacity;
+pub mod plot;
 pub mod transfer;
 
 pub use error::{Error, Result};

@@ -24,26 +24,102 @@ use super::{Failure, emit, print_json};
     after_help = "Examples:\n  linegrid audit out/demo.h5\n  linegrid audit out/demo.h5 --samples 200 --seed 7 --json\n  linegrid audit out/demo.h5 --dataset central_depth --no-log-value"
 )]
 pub struct AuditArgs {
-    /// The grid file
-    grid: PathBuf,
-    /// Cells to test (all cells when the grid has at most this many; else a seeded sample)
-    #[arg(long, default_value_t = 500, value_name = "N")]
-    samples: usize,
-    /// Seed of the cell sample
-    #[arg(long, default_value_t = 1)]
-    seed: u64,
-    /// Per-line dataset to audit (default: equivalent_width, or the first per-line dataset)
-    #[arg(long)]
-    dataset: Option<String>,
-    /// Interpolate the value linearly rather than in log10 (the default is log10)
-    #[arg(long)]
-    no_log_value: bool,
+    #[command(flatten)]
+    setup: AuditSetup,
     /// How many refinement suggestions to print
     #[arg(long, default_value_t = 8, value_name = "N")]
     top: usize,
     /// Print JSON
     #[arg(long)]
     json: bool,
+}
+
+/// What to audit (shared with `linegrid plot audit`).
+#[derive(Args)]
+pub struct AuditSetup {
+    /// The grid file
+    pub grid: PathBuf,
+    /// Cells to test (all cells when the grid has at most this many; else a seeded sample)
+    #[arg(long, default_value_t = 500, value_name = "N")]
+    pub samples: usize,
+    /// Seed of the cell sample
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Per-line dataset to audit (default: equivalent_width, or the first per-line dataset)
+    #[arg(long)]
+    pub dataset: Option<String>,
+    /// Interpolate the value linearly rather than in log10 (the default is log10)
+    #[arg(long)]
+    pub no_log_value: bool,
+}
+
+/// One relative interpolation error: at the centre of `cell` (`axis` None) or at the
+/// midpoint of its edge along `axis`, for line `line`, scheme `method` (0 linear, 1 cubic).
+#[derive(Debug, Clone, Copy)]
+pub struct AuditRecord {
+    /// Flat cell index (row-major over the cell shape).
+    pub cell: usize,
+    /// Edge axis, or None at the centre.
+    pub axis: Option<usize>,
+    /// Line index.
+    pub line: usize,
+    /// 0 multilinear, 1 cubic.
+    pub method: usize,
+    /// |interpolated − exact| / |exact|.
+    pub error: f64,
+}
+
+/// The audit's measurements before any summary.
+pub struct Audit {
+    /// The grid.
+    pub grid: Grid,
+    /// The dataset audited.
+    pub dataset: String,
+    /// Line labels.
+    pub lines: Vec<String>,
+    /// Interpolation coordinate per axis.
+    pub coords: Vec<Coord>,
+    /// Interpolated in log10 of the value.
+    pub log_value: bool,
+    /// Cells per axis.
+    pub cell_shape: Vec<usize>,
+    /// Cells tested (flat indices, ascending).
+    pub cells: Vec<usize>,
+    /// Whether `cells` is a seeded sample.
+    pub sampled: bool,
+    /// Physics evaluations made.
+    pub evaluations: usize,
+    /// Points skipped (not converged).
+    pub skipped: usize,
+    /// Interpolations refused (flagged stencil).
+    pub refused: usize,
+    /// Today's physics against the stored nodes (first and last point), max relative.
+    pub node_check: f64,
+    /// Every error measured.
+    pub records: Vec<AuditRecord>,
+}
+
+impl Audit {
+    /// Cell indices per axis of a flat cell index.
+    pub fn unravel(&self, mut f: usize) -> Vec<usize> {
+        let nd = self.cell_shape.len();
+        let mut idx = vec![0; nd];
+        for d in (0..nd).rev() {
+            idx[d] = f % self.cell_shape[d];
+            f /= self.cell_shape[d];
+        }
+        idx
+    }
+
+    /// Midpoint between nodes i, i+1 of axis d in its coordinate, mapped back.
+    pub fn mid(&self, d: usize, i: usize) -> f64 {
+        let v = &self.grid.axes()[d].values;
+        match self.coords[d] {
+            Coord::Linear => 0.5 * (v[i] + v[i + 1]),
+            Coord::Log10 => (v[i] * v[i + 1]).sqrt(),
+            Coord::Theta => 2.0 / (1.0 / v[i] + 1.0 / v[i + 1]),
+        }
+    }
 }
 
 /// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA "Fast splittable pseudorandom number
@@ -102,7 +178,8 @@ fn quantiles(mut v: Vec<f64>) -> (f64, f64, f64) {
     (q(0.5), q(0.95), v[v.len() - 1])
 }
 
-pub fn run(a: AuditArgs) -> Result<(), Failure> {
+/// Recompute the physics at the audit points and measure every interpolation error.
+pub fn measure(a: &AuditSetup) -> Result<Audit, Failure> {
     let grid = Grid::open(&a.grid).map_err(interp_failure)?;
     let plan = plan_of(&grid)?;
     let quantities = model::quantities(&plan);
@@ -154,36 +231,34 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
         cells.truncate(a.samples);
         cells.sort_unstable();
     }
-    let unravel = |mut f: usize| {
-        let mut idx = vec![0; nd];
-        for d in (0..nd).rev() {
-            idx[d] = f % cell_shape[d];
-            f /= cell_shape[d];
-        }
-        idx
-    };
-    // Midpoint between nodes i, i+1 of axis d in its coordinate, mapped back.
-    let mid = |d: usize, i: usize| {
-        let v = &grid.axes()[d].values;
-        match coords[d] {
-            Coord::Linear => 0.5 * (v[i] + v[i + 1]),
-            Coord::Log10 => (v[i] * v[i + 1]).sqrt(),
-            Coord::Theta => 2.0 / (1.0 / v[i] + 1.0 / v[i + 1]),
-        }
+    let mut audit = Audit {
+        grid,
+        dataset,
+        lines,
+        coords,
+        log_value,
+        cell_shape,
+        cells,
+        sampled,
+        evaluations: 0,
+        skipped: 0,
+        refused: 0,
+        node_check: 0.0,
+        records: Vec::new(),
     };
     // Points: per cell, the centre (kind None) and each axis' edge midpoint (kind Some(d)).
     let mut points: Vec<(usize, Option<usize>, Vec<f64>)> = Vec::new();
-    for &c in &cells {
-        let idx = unravel(c);
-        let centre: Vec<f64> = (0..nd).map(|d| mid(d, idx[d])).collect();
+    for &c in &audit.cells {
+        let idx = audit.unravel(c);
+        let centre: Vec<f64> = (0..nd).map(|d| audit.mid(d, idx[d])).collect();
         points.push((c, None, centre));
         for e in 0..nd {
             let p: Vec<f64> = (0..nd)
                 .map(|d| {
                     if d == e {
-                        mid(d, idx[d])
+                        audit.mid(d, idx[d])
                     } else {
-                        grid.axes()[d].values[idx[d]]
+                        audit.grid.axes()[d].values[idx[d]]
                     }
                 })
                 .collect();
@@ -195,8 +270,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
         .map(|(_, _, p)| model::evaluate_at(&plan, &quantities, p))
         .collect();
     // Check: the physics of today reproduces the stored nodes (first and last point).
-    let stored = grid.read(&dataset).map_err(interp_failure)?;
-    let mut node_check = 0.0f64;
+    let stored = audit.grid.read(&audit.dataset).map_err(interp_failure)?;
     for flat in [0, plan.point_count() - 1] {
         let pv = model::evaluate(&plan, &quantities, flat);
         let idx = plan.unravel(flat);
@@ -205,49 +279,77 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
             full.push(k);
             let s = stored[full.as_slice()];
             if x.is_finite() && s.is_finite() && s != 0.0 {
-                node_check = node_check.max(((x - s) / s).abs());
+                audit.node_check = audit.node_check.max(((x - s) / s).abs());
             }
         }
     }
-    // Relative errors: [method][line] at centres; [method][axis] at edge midpoints.
-    let mut centre_err = vec![vec![Vec::new(); lines.len()]; 2];
-    let mut axis_err = vec![vec![Vec::new(); nd]; 2];
-    let mut cell_worst: std::collections::BTreeMap<usize, (f64, String)> = Default::default();
-    let mut edge_worst: Vec<(f64, usize, usize, String)> = Vec::new(); // (err, cell, axis, line)
-    let mut skipped = 0usize;
-    let mut interp_failed = 0usize;
+    audit.evaluations = points.len();
     for ((c, kind, p), ex) in points.iter().zip(&exact) {
         if ex.status != 0 {
-            skipped += 1;
+            audit.skipped += 1;
             continue;
         }
-        for (k, line) in lines.iter().enumerate() {
+        for k in 0..audit.lines.len() {
             let truth = ex.values[qi][k];
             if !truth.is_finite() || truth == 0.0 {
                 continue;
             }
             for (m, ips) in interps.iter().enumerate() {
                 let Ok(s) = ips[k].evaluate(p) else {
-                    interp_failed += 1;
+                    audit.refused += 1;
                     continue;
                 };
-                let err = ((s.value - truth) / truth).abs();
-                match kind {
-                    None => {
-                        centre_err[m][k].push(err);
-                        if m == 0 {
-                            let w = cell_worst.entry(*c).or_insert((0.0, String::new()));
-                            if err > w.0 {
-                                *w = (err, line.clone());
-                            }
-                        }
+                audit.records.push(AuditRecord {
+                    cell: *c,
+                    axis: *kind,
+                    line: k,
+                    method: m,
+                    error: ((s.value - truth) / truth).abs(),
+                });
+            }
+        }
+    }
+    Ok(audit)
+}
+
+pub fn run(a: AuditArgs) -> Result<(), Failure> {
+    let audit = measure(&a.setup)?;
+    let (grid, lines, coords, log_value) =
+        (&audit.grid, &audit.lines, &audit.coords, audit.log_value);
+    let dataset = &audit.dataset;
+    let nd = grid.axes().len();
+    let n_cells: usize = audit.cell_shape.iter().product();
+    let (cells, sampled, skipped, interp_failed, node_check) = (
+        &audit.cells,
+        audit.sampled,
+        audit.skipped,
+        audit.refused,
+        audit.node_check,
+    );
+    let unravel = |f: usize| audit.unravel(f);
+    let mid = |d: usize, i: usize| audit.mid(d, i);
+    // Relative errors: [method][line] at centres; [method][axis] at edge midpoints.
+    let mut centre_err = vec![vec![Vec::new(); lines.len()]; 2];
+    let mut axis_err = vec![vec![Vec::new(); nd]; 2];
+    let mut cell_worst: std::collections::BTreeMap<usize, (f64, String)> = Default::default();
+    let mut edge_worst: Vec<(f64, usize, usize, String)> = Vec::new(); // (err, cell, axis, line)
+    for r in &audit.records {
+        let (m, k, err) = (r.method, r.line, r.error);
+        let line = &lines[k];
+        match r.axis {
+            None => {
+                centre_err[m][k].push(err);
+                if m == 0 {
+                    let w = cell_worst.entry(r.cell).or_insert((0.0, String::new()));
+                    if err > w.0 {
+                        *w = (err, line.clone());
                     }
-                    Some(d) => {
-                        axis_err[m][*d].push(err);
-                        if m == 0 {
-                            edge_worst.push((err, *c, *d, line.clone()));
-                        }
-                    }
+                }
+            }
+            Some(d) => {
+                axis_err[m][d].push(err);
+                if m == 0 {
+                    edge_worst.push((err, r.cell, d, line.clone()));
                 }
             }
         }
@@ -329,14 +431,14 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
         .collect();
     if a.json {
         return print_json(&json!({
-            "grid": a.grid.display().to_string(),
+            "grid": a.setup.grid.display().to_string(),
             "dataset": dataset,
             "log_value": log_value,
             "cells": n_cells,
             "cells_tested": cells.len(),
             "sampled": sampled,
-            "seed": a.seed,
-            "physics_evaluations": points.len(),
+            "seed": a.setup.seed,
+            "physics_evaluations": audit.evaluations,
             "skipped_not_converged": skipped,
             "interpolation_refused": interp_failed,
             "node_check_max_relative_difference": node_check,
@@ -350,7 +452,7 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
     outln!(
         o,
         "{}: {dataset}, relative error of interpolation ({}) against the direct solver",
-        a.grid.display(),
+        a.setup.grid.display(),
         if log_value {
             "in log10 of the value"
         } else {
@@ -362,11 +464,11 @@ pub fn run(a: AuditArgs) -> Result<(), Failure> {
         "cells tested: {} of {n_cells}{}; physics evaluations: {}; skipped (not converged): {skipped}; interpolations refused (flagged stencil): {interp_failed}",
         cells.len(),
         if sampled {
-            format!(" (seeded sample, seed {})", a.seed)
+            format!(" (seeded sample, seed {})", a.setup.seed)
         } else {
             String::new()
         },
-        points.len()
+        audit.evaluations
     );
     outln!(
         o,

@@ -15,6 +15,7 @@ mod audit;
 mod build;
 mod fit;
 mod info;
+mod plot;
 mod populations;
 mod sample;
 mod slab;
@@ -73,6 +74,8 @@ enum Command {
     Audit(audit::AuditArgs),
     /// Fit observed line strengths with the grid: every local minimum, chi2, uncertainties
     Fit(fit::FitArgs),
+    /// Draw a figure (PNG or SVG): line strength from a grid, curve of growth, line profile, audit map, departure coefficients
+    Plot(plot::PlotArgs),
 }
 
 /// A failure with the exit code it maps to.
@@ -130,6 +133,7 @@ pub fn run() -> ExitCode {
         Command::Sample(a) => sample::run(a),
         Command::Audit(a) => audit::run(a),
         Command::Fit(a) => fit::run(a),
+        Command::Plot(a) => plot::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -6,7 +6,7 @@ use serde_json::json;
 
 use linegrid::atoms::AtomicData;
 use linegrid::atoms::lines::{Catalogue, Line, Selection, read_csv};
-use linegrid::formation::growth::curve_of_growth;
+use linegrid::formation::growth::{GrowthPoint, curve_of_growth};
 use linegrid::formation::{self, Background, Geometry, SlabError, SlabOptions, View};
 use linegrid::transfer::growth::AbsorptionLine;
 
@@ -37,6 +37,20 @@ pub struct LineArgs {
 }
 
 impl LineArgs {
+    /// The one line `label` (from the catalogue plus an optional user file).
+    pub fn one(label: &str, line_list: Option<std::path::PathBuf>) -> Result<Line, Failure> {
+        let la = LineArgs {
+            lines: vec![label.to_string()],
+            species: vec![],
+            family: vec![],
+            min_wavelength: None,
+            max_wavelength: None,
+            line_list,
+        };
+        let cat = la.catalogue()?;
+        Ok(la.select(&cat)?.remove(0))
+    }
+
     /// The catalogue (built-in plus the user's file).
     pub fn catalogue(&self) -> Result<Catalogue, Failure> {
         let mut cat = Catalogue::embedded().clone();
@@ -100,13 +114,30 @@ impl LineArgs {
 
 #[derive(Args)]
 #[command(
-    group(ArgGroup::new("size").required(true).args(["thickness", "hydrogen_column"])),
-    group(ArgGroup::new("behind").required(true).args(["background_temperature", "no_background"])),
     after_help = "Examples:\n  linegrid slab --temperature 9500 --gas-pressure 1e4 --thickness 1e7 --background-temperature 11400 --family Balmer --max-wavelength 700\n  linegrid slab --temperature 5800 --gas-pressure 1e5 --hydrogen-column 1e23 --background-temperature 7000 --lines \"Ca II K,Na I D2,H-alpha\" --json\n  linegrid slab --temperature 10000 --electron-density 1e13 --thickness 1 --no-background --lines H-alpha,H-beta"
 )]
 pub struct SlabArgs {
     #[command(flatten)]
     point: PointArgs,
+    #[command(flatten)]
+    setup: SlabSetupArgs,
+    #[command(flatten)]
+    lines: LineArgs,
+    #[command(flatten)]
+    populations: super::populations::PopulationArgs,
+    /// Print JSON
+    #[arg(long)]
+    json: bool,
+}
+
+/// The slab around the gas: size, background, microturbulence, view, continuum (shared with
+/// `linegrid plot profile`).
+#[derive(Args)]
+#[command(
+    group(ArgGroup::new("size").required(true).args(["thickness", "hydrogen_column"])),
+    group(ArgGroup::new("behind").required(true).args(["background_temperature", "no_background"])),
+)]
+pub struct SlabSetupArgs {
     /// Slab thickness, cm
     #[arg(long, allow_negative_numbers = true, value_name = "CM")]
     thickness: Option<f64>,
@@ -133,36 +164,37 @@ pub struct SlabArgs {
     /// Leave out the continuum opacity
     #[arg(long)]
     no_continuum: bool,
-    #[command(flatten)]
-    lines: LineArgs,
-    #[command(flatten)]
-    populations: super::populations::PopulationArgs,
-    /// Print JSON
-    #[arg(long)]
-    json: bool,
 }
 
-fn slab_failure(e: SlabError) -> Failure {
+impl SlabSetupArgs {
+    /// The validated slab options.
+    pub fn options(&self) -> Result<SlabOptions, Failure> {
+        let opts = SlabOptions {
+            geometry: match (self.thickness, self.hydrogen_column) {
+                (Some(l), _) => Geometry::Thickness(l),
+                (_, Some(n)) => Geometry::HydrogenColumn(n),
+                _ => unreachable!("clap requires one"),
+            },
+            background: match self.background_temperature {
+                Some(t) => Background::Planck(t),
+                None => Background::None,
+            },
+            microturbulence: self.microturbulence * 1e5,
+            view: self.mu.map_or(View::Flux, View::Intensity),
+            continuum: !self.no_continuum,
+            damping: None,
+        };
+        opts.validate().map_err(slab_failure)?;
+        Ok(opts)
+    }
+}
+
+pub fn slab_failure(e: SlabError) -> Failure {
     Failure::bad_input(e)
 }
 
 pub fn slab(a: SlabArgs) -> Result<(), Failure> {
-    let opts = SlabOptions {
-        geometry: match (a.thickness, a.hydrogen_column) {
-            (Some(l), _) => Geometry::Thickness(l),
-            (_, Some(n)) => Geometry::HydrogenColumn(n),
-            _ => unreachable!("clap requires one"),
-        },
-        background: match a.background_temperature {
-            Some(t) => Background::Planck(t),
-            None => Background::None,
-        },
-        microturbulence: a.microturbulence * 1e5,
-        view: a.mu.map_or(View::Flux, View::Intensity),
-        continuum: !a.no_continuum,
-        damping: None,
-    };
-    opts.validate().map_err(slab_failure)?;
+    let opts = a.setup.options()?;
     let cat = a.lines.catalogue()?;
     let lines = a.lines.select(&cat)?;
     let (req, state) = a.point.solve(20)?;
@@ -295,6 +327,16 @@ fn mean_evals(s: &[formation::LineStrength]) -> f64 {
     after_help = "Examples:\n  linegrid growth --line \"Na I D2\" --temperature 5800 --gas-pressure 1e5\n  linegrid growth --line H-alpha --temperature 9000 --electron-density 1e13 --min-log-column 10 --max-log-column 20 --json"
 )]
 pub struct GrowthArgs {
+    #[command(flatten)]
+    curve: GrowthCurveArgs,
+    /// Print JSON instead of CSV
+    #[arg(long)]
+    json: bool,
+}
+
+/// Which curve of growth (shared with `linegrid plot growth`).
+#[derive(Args)]
+pub struct GrowthCurveArgs {
     /// The line (label)
     #[arg(long, value_name = "LABEL")]
     line: String,
@@ -331,65 +373,91 @@ pub struct GrowthArgs {
     /// Extra lines from a CSV file
     #[arg(long, value_name = "FILE")]
     line_list: Option<std::path::PathBuf>,
-    /// Print JSON instead of CSV
-    #[arg(long)]
-    json: bool,
+}
+
+/// A computed curve of growth.
+pub struct GrowthCurve {
+    /// The line.
+    pub line: Line,
+    /// Its absorption parameters.
+    pub absorption: AbsorptionLine,
+    /// Doppler width, cm.
+    pub doppler_cm: f64,
+    /// The gas temperature, K.
+    pub temperature: f64,
+    /// The gas' electron density, cm⁻³.
+    pub electron_density: f64,
+    /// The points.
+    pub points: Vec<GrowthPoint>,
+}
+
+impl GrowthCurveArgs {
+    /// Compute the curve.
+    pub fn compute(&self) -> Result<GrowthCurve, Failure> {
+        let a = self;
+        let line = LineArgs::one(&a.line, a.line_list.clone())?;
+        if !(a.min_log_column.is_finite()
+            && a.max_log_column.is_finite()
+            && a.min_log_column < a.max_log_column)
+        {
+            return Err(Failure::bad_input(anyhow::anyhow!(
+                "--min-log-column {} must be below --max-log-column {}",
+                a.min_log_column,
+                a.max_log_column
+            )));
+        }
+        if !(2..=10_000).contains(&a.points) {
+            return Err(Failure::bad_input(anyhow::anyhow!(
+                "--points {}: must be between 2 and 10000",
+                a.points
+            )));
+        }
+        let (_, state) = a.point.solve(20)?;
+        let data = AtomicData::embedded();
+        let opts = SlabOptions {
+            geometry: Geometry::Thickness(1.0),
+            background: Background::Planck(state.temperature),
+            microturbulence: a.microturbulence * 1e5,
+            view: View::Flux,
+            continuum: false,
+            damping: None,
+        };
+        opts.validate().map_err(slab_failure)?;
+        let su = formation::setup_line(data, &state, &opts, &line).map_err(slab_failure)?;
+        let gl = AbsorptionLine {
+            wavelength: line.wavelength_vac,
+            f_value: line.f_value(),
+            doppler_b: su.widths.doppler_hz * line.wavelength_vac,
+            gamma: su.widths.gamma(),
+        };
+        let step = (a.max_log_column - a.min_log_column) / (a.points - 1) as f64;
+        let cols: Vec<f64> = (0..a.points)
+            .map(|i| 10f64.powf(a.min_log_column + step * i as f64))
+            .collect();
+        let points = curve_of_growth(&gl, &cols);
+        Ok(GrowthCurve {
+            line,
+            absorption: gl,
+            doppler_cm: su.widths.doppler_cm,
+            temperature: state.temperature,
+            electron_density: state.electron_density,
+            points,
+        })
+    }
 }
 
 pub fn growth(a: GrowthArgs) -> Result<(), Failure> {
-    let la = LineArgs {
-        lines: vec![a.line.clone()],
-        species: vec![],
-        family: vec![],
-        min_wavelength: None,
-        max_wavelength: None,
-        line_list: a.line_list.clone(),
-    };
-    let cat = la.catalogue()?;
-    let line = la.select(&cat)?.remove(0);
-    if !(a.min_log_column.is_finite()
-        && a.max_log_column.is_finite()
-        && a.min_log_column < a.max_log_column)
-    {
-        return Err(Failure::bad_input(anyhow::anyhow!(
-            "--min-log-column {} must be below --max-log-column {}",
-            a.min_log_column,
-            a.max_log_column
-        )));
-    }
-    if !(2..=10_000).contains(&a.points) {
-        return Err(Failure::bad_input(anyhow::anyhow!(
-            "--points {}: must be between 2 and 10000",
-            a.points
-        )));
-    }
-    let (_, state) = a.point.solve(20)?;
-    let data = AtomicData::embedded();
-    let opts = SlabOptions {
-        geometry: Geometry::Thickness(1.0),
-        background: Background::Planck(state.temperature),
-        microturbulence: a.microturbulence * 1e5,
-        view: View::Flux,
-        continuum: false,
-        damping: None,
-    };
-    opts.validate().map_err(slab_failure)?;
-    let su = formation::setup_line(data, &state, &opts, &line).map_err(slab_failure)?;
-    let gl = AbsorptionLine {
-        wavelength: line.wavelength_vac,
-        f_value: line.f_value(),
-        doppler_b: su.widths.doppler_hz * line.wavelength_vac,
-        gamma: su.widths.gamma(),
-    };
-    let step = (a.max_log_column - a.min_log_column) / (a.points - 1) as f64;
-    let cols: Vec<f64> = (0..a.points)
-        .map(|i| 10f64.powf(a.min_log_column + step * i as f64))
-        .collect();
-    let pts = curve_of_growth(&gl, &cols);
+    let GrowthCurve {
+        line,
+        absorption: gl,
+        doppler_cm,
+        points: pts,
+        ..
+    } = a.curve.compute()?;
     if a.json {
         return print_json(&json!({
             "line": line.label, "wavelength_angstrom": line.wavelength() * 1e8, "f": gl.f_value,
-            "doppler_width_angstrom": su.widths.doppler_cm * 1e8, "damping_parameter": gl.damping_parameter(),
+            "doppler_width_angstrom": doppler_cm * 1e8, "damping_parameter": gl.damping_parameter(),
             "points": pts,
         }));
     }
@@ -400,7 +468,7 @@ pub fn growth(a: GrowthArgs) -> Result<(), Failure> {
         line.label,
         line.wavelength() * 1e8,
         gl.f_value,
-        su.widths.doppler_cm * 1e8,
+        doppler_cm * 1e8,
         gl.damping_parameter()
     );
     outln!(

@@ -533,6 +533,46 @@ pub fn line_strength(
     })
 }
 
+/// The normalised emergent spectrum across one line: for each wavelength offset (cm, from
+/// the vacuum line centre) the pair (vacuum wavelength in cm, F/F_c) — flux, or intensity at
+/// μ, divided by the continuum of the same slab without the line at that wavelength. The
+/// same quantities as [`line_strength`] integrates (1 − F/F_c is its depth profile). Needs a
+/// continuum: a Planck background or continuum opacity.
+pub fn line_profile(
+    data: &AtomicData,
+    state: &State,
+    opts: &SlabOptions,
+    line: &Line,
+    offsets: &[f64],
+) -> Result<Vec<(f64, f64)>, SlabError> {
+    opts.validate()?;
+    if matches!(opts.background, Background::None) && !opts.continuum {
+        return Err(SlabError::Invalid {
+            field: "--no-background",
+            value: 0.0,
+            expected: "a normalised profile needs a continuum: give a background temperature or keep the continuum opacity",
+        });
+    }
+    let su = setup_line(data, state, opts, line)?;
+    let t = state.temperature;
+    let tau_c = su.kappa_cont * su.thickness;
+    Ok(offsets
+        .iter()
+        .map(|&x| {
+            let lam = su.lambda0 + x;
+            let nu = C / lam;
+            let s = special::planck_nu(nu, t);
+            let bg = match opts.background {
+                Background::Planck(tb) => special::planck_nu(nu, tb),
+                Background::None => 0.0,
+            };
+            let f = emergent(opts.view, su.tau_line(x) + tau_c, s, bg);
+            let fc = emergent(opts.view, tau_c, s, bg);
+            (lam, if fc > 0.0 { f / fc } else { f64::NAN })
+        })
+        .collect())
+}
+
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
 /// central value: bracketed by doubling, then refined by the Illinois variant of false
 /// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
