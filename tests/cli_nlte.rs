@@ -170,3 +170,76 @@ fn state_reports_departure_coefficients() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("--radiation-temperature"));
 }
+
+/// `plot departure` without a table solves the model on a sweep: the exported numbers are
+/// the library's own solution at each point, and the picture has the asked size.
+#[test]
+fn departure_sweep_plot_exports_the_model() {
+    use linegrid::atoms::AtomicData;
+    use linegrid::eos::{Composition, Density, EosOptions, StateRequest, solve_with};
+    use linegrid::formation::departures::{CrSettings, solve_with_escape};
+    let tmp = tempfile::tempdir().unwrap();
+    let png = tmp.path().join("b.png");
+    let csv = tmp.path().join("b.csv");
+    let o = Command::new(bin())
+        .args([
+            "plot",
+            "departure",
+            "--temperature",
+            "12000",
+            "--min-electron-density",
+            "1e9",
+            "--max-electron-density",
+            "1e17",
+            "--steps",
+            "5",
+            "--cr-levels",
+            "10",
+            "--show",
+            "2,3,7",
+            "-o",
+            png.to_str().unwrap(),
+            "--data",
+            csv.to_str().unwrap(),
+        ])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(&png).unwrap()));
+    let reader = decoder.read_info().unwrap();
+    assert_eq!((reader.info().width, reader.info().height), (800, 600));
+    let text = std::fs::read_to_string(&csv).unwrap();
+    let rows: Vec<Vec<f64>> = text
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').map(|x| x.parse().unwrap()).collect())
+        .collect();
+    assert_eq!(rows.len(), 5);
+    let data = AtomicData::embedded();
+    let cr = CrSettings {
+        levels: 10,
+        ..CrSettings::default()
+    };
+    for (k, row) in rows.iter().enumerate() {
+        let ne = 1e9 * (1e17f64 / 1e9).powf(k as f64 / 4.0);
+        let state = solve_with(
+            data,
+            &StateRequest {
+                temperature: 12000.0,
+                density: Density::ElectronDensity(ne),
+                composition: Composition {
+                    elements: Some(vec!["H".into()]),
+                    ..Composition::default()
+                },
+                options: EosOptions::default(),
+            },
+        )
+        .unwrap();
+        let sol = solve_with_escape(data, &state, &cr, linegrid::nlte::Escape::Thin).unwrap();
+        let b = sol.departures();
+        let want = [sol.electron_density, b[1], b[2], b[6]];
+        for (got, want) in row.iter().zip(want) {
+            assert!((got / want - 1.0).abs() < 1e-12, "row {k}: {got} vs {want}");
+        }
+    }
+}

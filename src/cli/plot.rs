@@ -627,33 +627,173 @@ fn audit(a: AuditPlotArgs) -> Result<(), Failure> {
 
 #[derive(Args)]
 #[command(
-    after_help = "TABLE is CSV (header n_e,b_1,b_2,...,b_N; n_e in cm^-3; one row per electron density; '#' comments) or JSON ({\"n_e\": [...], \"levels\": [1, 2, ...], \"b\": [[b_1, b_2, ...], ...]}), chosen by the .json extension."
+    after_help = "TABLE is CSV (header n_e,b_1,b_2,...,b_N; n_e in cm^-3; one row per electron density; '#' comments) or JSON ({\"n_e\": [...], \"levels\": [1, 2, ...], \"b\": [[b_1, b_2, ...], ...]}), chosen by the .json extension.\n\nWithout TABLE the collisional-radiative model is solved on a sweep of pure-hydrogen gas at one temperature, from --min-electron-density to --max-electron-density (LTE electron densities that fix each point; the curves are drawn against the model's own n_e), e.g.\n  linegrid plot departure --temperature 10000 --min-electron-density 1e8 --max-electron-density 1e18 --show 1,2,3,5,10 -o b.png"
 )]
 struct DepartureArgs {
     /// The table of departure coefficients (CSV, or JSON when the name ends in .json)
-    table: PathBuf,
+    table: Option<PathBuf>,
+    /// Sweep: gas temperature, K
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "K",
+        required_unless_present = "table"
+    )]
+    temperature: Option<f64>,
+    /// Sweep: lowest LTE electron density, cm^-3
+    #[arg(
+        long,
+        default_value_t = 1e8,
+        allow_negative_numbers = true,
+        value_name = "CM-3"
+    )]
+    min_electron_density: f64,
+    /// Sweep: highest LTE electron density, cm^-3
+    #[arg(
+        long,
+        default_value_t = 1e18,
+        allow_negative_numbers = true,
+        value_name = "CM-3"
+    )]
+    max_electron_density: f64,
+    /// Sweep: number of densities (log-spaced)
+    #[arg(long, default_value_t = 31, value_name = "N")]
+    steps: usize,
+    /// Sweep: line escape from a slab of this thickness, cm (default: optically thin lines)
+    #[arg(long, allow_negative_numbers = true, value_name = "CM")]
+    thickness: Option<f64>,
+    /// Shells to draw, comma-separated (default: all)
+    #[arg(long, value_delimiter = ',', value_name = "LIST")]
+    show: Option<Vec<u32>>,
+    #[command(flatten)]
+    populations: super::populations::PopulationArgs,
     #[command(flatten)]
     out: OutputArgs,
 }
 
+/// Solve the collisional-radiative model along a sweep of LTE electron densities.
+fn departure_sweep(a: &DepartureArgs, t: f64) -> Result<(DepartureTable, String), Failure> {
+    use linegrid::eos::{self, Composition, Density, EosOptions, StateRequest};
+    use linegrid::formation::departures::solve_with_escape;
+    use linegrid::nlte::Escape;
+    let bad = |m: String| Failure::bad_input(anyhow::anyhow!(m));
+    let (lo, hi) = (a.min_electron_density, a.max_electron_density);
+    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {
+        return Err(bad(format!(
+            "--min-electron-density {lo} and --max-electron-density {hi}: need 0 < min < max"
+        )));
+    }
+    if !(2..=1000).contains(&a.steps) {
+        return Err(bad(format!(
+            "--steps {}: must be between 2 and 1000",
+            a.steps
+        )));
+    }
+    if let Some(l) = a.thickness
+        && !(l.is_finite() && l > 0.0)
+    {
+        return Err(bad(format!(
+            "--thickness {l}: must be a finite positive number"
+        )));
+    }
+    let mut cr = a.populations.settings()?.unwrap_or_default();
+    if a.populations.populations == super::populations::PopulationsChoice::Lte {
+        cr = linegrid::formation::departures::CrSettings {
+            levels: a.populations.cr_levels,
+            ..cr
+        };
+    }
+    let data = linegrid::atoms::AtomicData::embedded();
+    let mut table = DepartureTable {
+        electron_density: Vec::new(),
+        levels: (1..=cr.levels).collect(),
+        b: Vec::new(),
+    };
+    for k in 0..a.steps {
+        let ne = lo * (hi / lo).powf(k as f64 / (a.steps - 1) as f64);
+        let req = StateRequest {
+            temperature: t,
+            density: Density::ElectronDensity(ne),
+            composition: Composition {
+                elements: Some(vec!["H".into()]),
+                ..Composition::default()
+            },
+            options: EosOptions::default(),
+        };
+        let state = eos::solve_with(data, &req).map_err(|e| match e {
+            eos::StateError::Input(e) => Failure::bad_input(e),
+            eos::StateError::NotConverged(nc) => Failure::failed(nc),
+        })?;
+        let escape = match a.thickness {
+            None => Escape::Thin,
+            Some(l) => Escape::Slab {
+                thickness: l,
+                microturbulence: 2e5,
+            },
+        };
+        let sol =
+            solve_with_escape(data, &state, &cr, escape).map_err(super::populations::cr_failure)?;
+        table.electron_density.push(sol.electron_density);
+        table.b.push(sol.departures());
+    }
+    let escape = a
+        .thickness
+        .map_or("thin lines".to_string(), |l| format!("L = {l:e} cm"));
+    Ok((
+        table,
+        format!(
+            "H, {t} K, N = {}, W = {}, {escape}{}",
+            cr.levels,
+            cr.field.dilution,
+            if cr.case_b { ", case B" } else { "" }
+        ),
+    ))
+}
+
 fn departure(a: DepartureArgs) -> Result<(), Failure> {
     let format = a.out.check()?;
-    let text = read_text(&a.table)?;
-    let name = a.table.display().to_string();
-    let is_json = a
-        .table
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("json"));
-    let table = if is_json {
-        DepartureTable::from_json(&text, &name)
-    } else {
-        DepartureTable::from_csv(&text, &name)
+    let (mut table, note) = match (&a.table, a.temperature) {
+        (Some(path), _) => {
+            let text = read_text(path)?;
+            let name = path.display().to_string();
+            let is_json = path
+                .extension()
+                .is_some_and(|e| e.eq_ignore_ascii_case("json"));
+            let table = if is_json {
+                DepartureTable::from_json(&text, &name)
+            } else {
+                DepartureTable::from_csv(&text, &name)
+            }
+            .map_err(Failure::bad_input)?;
+            (table, format!("from {}", path.display()))
+        }
+        (None, Some(t)) => departure_sweep(&a, t)?,
+        (None, None) => unreachable!("clap requires a table or a temperature"),
+    };
+    if let Some(show) = &a.show {
+        for n in show {
+            if !table.levels.contains(n) {
+                return Err(Failure::bad_input(anyhow::anyhow!(
+                    "--show {n}: the table has shells {}..{}",
+                    table.levels.first().copied().unwrap_or(0),
+                    table.levels.last().copied().unwrap_or(0)
+                )));
+            }
+        }
+        let keep: Vec<usize> = (0..table.levels.len())
+            .filter(|&k| show.contains(&table.levels[k]))
+            .collect();
+        table.levels = keep.iter().map(|&k| table.levels[k]).collect();
+        table.b = table
+            .b
+            .iter()
+            .map(|row| keep.iter().map(|&k| row[k]).collect())
+            .collect();
     }
-    .map_err(Failure::bad_input)?;
     let chart = figures::departure_chart(
         &table,
         "Departure coefficients of hydrogen levels",
-        vec![format!("from {}", a.table.display())],
+        vec![note],
     );
     a.out.chart(format, chart, &figures::departure_csv(&table))
 }
