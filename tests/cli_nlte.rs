@@ -100,6 +100,28 @@ fn cr_grid_stores_departures_and_thermal_field_gives_lte() {
         let b = c.read("departure_3").unwrap();
         assert!(b.iter().all(|x| (x - 1.0).abs() < 1e-8), "{b:?}");
     }
+    // The radiation field as an axis: photo-ionisation by a 0.1-diluted 8000 K field lowers
+    // b_1 (the ground shell is over-populated less) at every point, and the axis is stored.
+    let field = build(&spec(
+        tmp.path(),
+        "field",
+        "populations = \"cr\"\ncr_levels = 12",
+        "dilution = { values = [0.0, 0.1] }\nradiation_temperature = 8000.0",
+    ));
+    let axis = field.axes().iter().find(|a| a.name == "dilution").unwrap();
+    assert_eq!(axis.values, vec![0.0, 0.1]);
+    let b1f = field.read("departure_1").unwrap(); // (temperature, density, dilution)
+    for i in 0..3 {
+        for j in 0..2 {
+            assert_eq!(b1f[[i, j, 0]].to_bits(), b1[[i, j]].to_bits());
+            assert!(
+                b1f[[i, j, 1]] < b1f[[i, j, 0]],
+                "{} vs {}",
+                b1f[[i, j, 1]],
+                b1f[[i, j, 0]]
+            );
+        }
+    }
     // Lines of other elements keep their LTE strengths bit for bit (the lite coupling: metals
     // stay in LTE at the LTE electron density); hydrogen lines change.
     let (wl, wd) = (
