@@ -232,6 +232,18 @@ impl Grid {
     /// One table over the axes: a per-point dataset (`line` None) or one line of a per-line
     /// dataset, with the status codes.
     pub fn table(&self, dataset: &str, line: Option<&str>) -> Result<Table> {
+        let mut t = self.tables_of(dataset, &[line])?;
+        Ok(t.remove(0))
+    }
+
+    /// One table per line of a per-line dataset, reading the dataset and the status codes
+    /// once (rather than once per line, as repeated [`Grid::table`] calls do).
+    pub fn tables(&self, dataset: &str, lines: &[&str]) -> Result<Vec<Table>> {
+        let lines: Vec<Option<&str>> = lines.iter().map(|&l| Some(l)).collect();
+        self.tables_of(dataset, &lines)
+    }
+
+    fn tables_of(&self, dataset: &str, lines: &[Option<&str>]) -> Result<Vec<Table>> {
         let meta = self
             .datasets()
             .iter()
@@ -249,33 +261,44 @@ impl Grid {
         if meta.kind == DataKind::Status {
             return Err(use_err("is the status code, not an interpolable quantity"));
         }
+        // Check every name before reading anything.
+        let mut index = Vec::with_capacity(lines.len());
+        for &line in lines {
+            index.push(match (meta.per_line, line) {
+                (true, Some(label)) => Some(self.line_index(label)?),
+                (true, None) => return Err(use_err("is per line: name the line")),
+                (false, Some(_)) => return Err(use_err("is per point: it takes no line")),
+                (false, None) => None,
+            });
+        }
         let data = self.read(dataset)?;
-        let values: Vec<f64> = match (meta.per_line, line) {
-            (true, Some(label)) => {
-                let k = self.line_index(label)?;
-                let last = data.ndim() - 1;
-                data.index_axis(ndarray::Axis(last), k)
-                    .iter()
-                    .copied()
-                    .collect()
-            }
-            (true, None) => return Err(use_err("is per line: name the line")),
-            (false, Some(_)) => return Err(use_err("is per point: it takes no line")),
-            (false, None) => data.iter().copied().collect(),
-        };
         let status: Vec<u8> = self.status()?.iter().copied().collect();
-        let name = match line {
-            Some(l) => format!("{dataset}[{l}]"),
-            None => dataset.to_string(),
-        };
-        Ok(Table {
-            path: self.path().to_path_buf(),
-            name,
-            axes: self.axes().to_vec(),
-            values,
-            status,
-            status_flags: self.file.status_flags().to_vec(),
-        })
+        let last = data.ndim() - 1;
+        Ok(lines
+            .iter()
+            .zip(index)
+            .map(|(line, k)| {
+                let values: Vec<f64> = match k {
+                    Some(k) => data
+                        .index_axis(ndarray::Axis(last), k)
+                        .iter()
+                        .copied()
+                        .collect(),
+                    None => data.iter().copied().collect(),
+                };
+                Table {
+                    path: self.path().to_path_buf(),
+                    name: match line {
+                        Some(l) => format!("{dataset}[{l}]"),
+                        None => dataset.to_string(),
+                    },
+                    axes: self.axes().to_vec(),
+                    values,
+                    status: status.clone(),
+                    status_flags: self.file.status_flags().to_vec(),
+                }
+            })
+            .collect())
     }
 }
 
