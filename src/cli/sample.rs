@@ -12,9 +12,15 @@ use linegrid::interp::{Coord, Grid, InterpError, Interpolator, Method, Options};
 use super::{Failure, emit, print_json};
 
 /// Map an interpolation error to its exit code: the user's names and points are bad input
-/// (2); a damaged file or a flagged region of the grid is a failure (1).
+/// (2); a damaged file or a flagged region of the grid is a failure (1). A stencil refused
+/// only for a value that has no log10 says how to interpolate the value itself.
 pub fn interp_failure(e: InterpError) -> Failure {
     match &e {
+        InterpError::Flagged {
+            non_positive: true, ..
+        } => Failure::failed(anyhow::anyhow!(
+            "{e}; values are interpolated in log10 by default, --no-log-value interpolates the value itself"
+        )),
         InterpError::Store(StoreError::UnknownDataset { .. })
         | InterpError::Store(StoreError::WrongKind { .. })
         | InterpError::Store(StoreError::NotHdf5 { .. })

@@ -125,6 +125,9 @@ pub enum InterpError {
         node: String,
         /// Status code meaning, NaN, or non-positive under log10.
         reason: String,
+        /// Whether the node is usable except that its value is not positive, so that its
+        /// log10 cannot be taken (interpolating the value itself would use it).
+        non_positive: bool,
     },
 }
 
@@ -620,7 +623,7 @@ pub struct Interpolator {
     /// Node values, sorted layout (row-major, last axis fastest).
     values: Vec<f64>,
     /// Flagged nodes (sorted flat index) and why.
-    flagged: HashMap<usize, String>,
+    flagged: HashMap<usize, (String, bool)>,
     /// Node strides of the sorted layout.
     strides: Vec<usize>,
     /// Per cell (row-major over the axes' cells): whether its stencil touches a flagged node.
@@ -851,11 +854,11 @@ impl Interpolator {
         let mut flagged = HashMap::new();
         for (flat, (&v, &s)) in table.values.iter().zip(&table.status).enumerate() {
             let flag = if s != 0 {
-                Some(meaning(s))
+                Some((meaning(s), false))
             } else if !v.is_finite() {
-                Some("value is not finite".to_string())
+                Some(("value is not finite".to_string(), false))
             } else if options.log_value && v <= 0.0 {
-                Some(format!("value {v} is not positive, log10 impossible"))
+                Some((format!("value {v} is not positive, log10 impossible"), true))
             } else {
                 None
             };
@@ -1165,12 +1168,13 @@ impl Interpolator {
                 flat += (st[a].start + k % st[a].len) * self.strides[a];
                 k /= st[a].len;
             }
-            if let Some(reason) = self.flagged.get(&flat) {
+            if let Some((reason, non_positive)) = self.flagged.get(&flat) {
                 return InterpError::Flagged {
                     path: self.path.clone(),
                     dataset: self.name.clone(),
                     node: self.node_name(flat),
                     reason: reason.clone(),
+                    non_positive: *non_positive,
                 };
             }
         }
