@@ -361,12 +361,13 @@ impl Coord {
     }
 
     /// u(x) (the same operation for nodes and points, so that a node maps exactly onto
-    /// its transformed value).
+    /// its transformed value). log10 is taken as ln x · log10 e: within an ulp or two of
+    /// `f64::log10` and about half its cost.
     #[inline(always)]
     pub fn forward(self, x: f64) -> f64 {
         match self {
             Coord::Linear => x,
-            Coord::Log10 => x.log10(),
+            Coord::Log10 => x.ln() * std::f64::consts::LOG10_E,
             Coord::Theta => 5040.0 / x,
         }
     }
