@@ -113,6 +113,23 @@ fn sample_reproduces_stored_nodes_and_refuses_bad_input() {
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["samples"].as_array().unwrap().len(), 3);
 
+    // Defaults: cubic in log10 of the value; --no-log-value interpolates the value itself
+    // (the last of --log-value / --no-log-value wins).
+    let at = "temperature=7000,gas_pressure=3e4,metallicity=-0.25";
+    for (extra, log_value) in [
+        (vec![], true),
+        (vec!["--no-log-value"], false),
+        (vec!["--no-log-value", "--log-value"], true),
+    ] {
+        let mut args = vec!["sample", g, "--at", at, "--json"];
+        args.extend(extra.iter());
+        let o = run(&args);
+        assert!(o.status.success(), "{extra:?}: {}", stderr(&o));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(v["method"], "cubic", "{extra:?}");
+        assert_eq!(v["log_value"], log_value, "{extra:?}");
+    }
+
     // Bad input: exit 2 and the message names the culprit.
     let csv = tmp.path().join("bad.csv");
     std::fs::write(
@@ -167,4 +184,35 @@ fn sample_reproduces_stored_nodes_and_refuses_bad_input() {
             stderr(&o)
         );
     }
+}
+
+#[test]
+fn a_zero_value_under_the_default_log10_is_refused_with_the_way_out() {
+    // He II 3-4 in cool gas: no He II, so W = 0 at every node (stored as converged).
+    let tmp = tempfile::tempdir().unwrap();
+    let spec = tmp.path().join("cool.toml");
+    std::fs::write(
+        &spec,
+        "[grid]\ntitle = \"cool\"\noutput = \"x.h5\"\n\n[parameters]\ntemperature = { values = [5000.0, 5500.0, 6000.0] }\ngas_pressure = 1.0e4\nhydrogen_column = 1.0e22\nbackground_ratio = 1.2\n\n[lines]\nlabels = [\"He II 3-4\"]\n",
+    )
+    .unwrap();
+    let grid = tmp.path().join("cool.h5");
+    let o = run(&[
+        "build",
+        spec.to_str().unwrap(),
+        "--output",
+        grid.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let g = grid.to_str().unwrap();
+    let o = run(&["sample", g, "--at", "temperature=5200"]);
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    let e = stderr(&o);
+    assert!(
+        e.contains("not positive, log10 impossible") && e.contains("--no-log-value"),
+        "{e}"
+    );
+    let o = run(&["sample", g, "--at", "temperature=5200", "--no-log-value"]);
+    assert!(o.status.success(), "{}", stderr(&o));
 }

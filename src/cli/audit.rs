@@ -202,18 +202,19 @@ pub fn measure(a: &AuditSetup) -> Result<Audit, Failure> {
     let lines: Vec<String> = grid.lines().iter().map(|l| l.label.clone()).collect();
     let log_value = !a.no_log_value;
     let coords: Vec<Coord> = grid.axes().iter().map(Coord::default_for).collect();
+    let labels: Vec<&str> = lines.iter().map(String::as_str).collect();
+    let tables = grid.tables(&dataset, &labels).map_err(interp_failure)?;
     let mut interps = Vec::new(); // [method][line]
     for m in [Method::Linear, Method::Cubic] {
         let mut v = Vec::new();
-        for l in &lines {
-            let t = grid.table(&dataset, Some(l)).map_err(interp_failure)?;
+        for t in &tables {
             let o = Options {
                 method: m,
                 coords: Some(coords.clone()),
                 log_value,
                 clamp: false,
             };
-            v.push(Interpolator::new(&t, &o).map_err(interp_failure)?);
+            v.push(Interpolator::new(t, &o).map_err(interp_failure)?);
         }
         interps.push(v);
     }

@@ -143,9 +143,9 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
             "--fix holds every axis: nothing left to fit"
         )));
     }
+    let labels: Vec<&str> = obs.iter().map(|o| o.0.as_str()).collect();
     let mut interps = Vec::new();
-    for (l, _, _) in &obs {
-        let t = grid.table(&dataset, Some(l)).map_err(interp_failure)?;
+    for t in grid.tables(&dataset, &labels).map_err(interp_failure)? {
         interps.push(Interpolator::new(&t, &options).map_err(interp_failure)?);
     }
     let refs: Vec<&Interpolator> = interps.iter().collect();
@@ -208,6 +208,7 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
             "grid": a.grid.display().to_string(),
             "dataset": dataset,
             "method": options.method.name(),
+            "log_value": options.log_value,
             "observations": obs.len(),
             "free_axes": free,
             "degenerate": res.degenerate,
@@ -218,14 +219,19 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
     let mut o = String::new();
     outln!(
         o,
-        "{}: {} observations of {dataset}, free axes: {} ({} interpolation)",
+        "{}: {} observations of {dataset}, free axes: {} ({} interpolation{})",
         a.grid.display(),
         obs.len(),
         free.iter()
             .map(|s| s.as_str())
             .collect::<Vec<_>>()
             .join(", "),
-        options.method.name()
+        options.method.name(),
+        if options.log_value {
+            " in log10 of the value"
+        } else {
+            ""
+        }
     );
     for (i, m) in res.minima.iter().enumerate() {
         outln!(

@@ -12,9 +12,15 @@ use linegrid::interp::{Coord, Grid, InterpError, Interpolator, Method, Options};
 use super::{Failure, emit, print_json};
 
 /// Map an interpolation error to its exit code: the user's names and points are bad input
-/// (2); a damaged file or a flagged region of the grid is a failure (1).
+/// (2); a damaged file or a flagged region of the grid is a failure (1). A stencil refused
+/// only for a value that has no log10 says how to interpolate the value itself.
 pub fn interp_failure(e: InterpError) -> Failure {
     match &e {
+        InterpError::Flagged {
+            non_positive: true, ..
+        } => Failure::failed(anyhow::anyhow!(
+            "{e}; values are interpolated in log10 by default, --no-log-value interpolates the value itself"
+        )),
         InterpError::Store(StoreError::UnknownDataset { .. })
         | InterpError::Store(StoreError::WrongKind { .. })
         | InterpError::Store(StoreError::NotHdf5 { .. })
@@ -51,12 +57,16 @@ impl From<MethodArg> for Method {
 /// Options shared by `sample`, `fit`: how to interpolate.
 #[derive(Args, Clone)]
 pub struct InterpArgs {
-    /// Interpolation scheme
+    /// Interpolation scheme (default cubic: the smallest error in `linegrid audit`)
     #[arg(long, value_enum, default_value = "cubic")]
     pub method: MethodArg,
-    /// Interpolate log10 of the value (values must be positive at the stencil's nodes)
-    #[arg(long)]
+    /// Interpolate log10 of the value, the default (values must be positive at the
+    /// stencil's nodes; a point whose stencil touches a zero or negative value is refused)
+    #[arg(long, overrides_with = "no_log_value")]
     pub log_value: bool,
+    /// Interpolate the value itself instead of its log10
+    #[arg(long, overrides_with = "log_value")]
+    pub no_log_value: bool,
     /// Clamp points outside the grid to its edge instead of failing
     #[arg(long)]
     pub clamp: bool,
@@ -86,7 +96,7 @@ impl InterpArgs {
         Ok(Options {
             method: self.method.into(),
             coords: Some(coords),
-            log_value: self.log_value,
+            log_value: !self.no_log_value,
             clamp: self.clamp,
         })
     }
@@ -94,7 +104,7 @@ impl InterpArgs {
 
 #[derive(Args)]
 #[command(
-    after_help = "Examples:\n  linegrid sample out/demo.h5 --at temperature=9000,gas_pressure=1e4,metallicity=0\n  linegrid sample out/demo.h5 --points points.csv --line H-beta --gradient --json\n  printf 'temperature,gas_pressure,metallicity\\n7000,3e4,-0.2\\n' | linegrid sample out/demo.h5 --points - --method linear --log-value"
+    after_help = "Examples:\n  linegrid sample out/demo.h5 --at temperature=9000,gas_pressure=1e4,metallicity=0\n  linegrid sample out/demo.h5 --points points.csv --line H-beta --gradient --json\n  printf 'temperature,gas_pressure,metallicity\\n7000,3e4,-0.2\\n' | linegrid sample out/demo.h5 --points - --method linear --no-log-value"
 )]
 pub struct SampleArgs {
     /// The grid file
@@ -298,12 +308,16 @@ pub fn run(a: SampleArgs) -> Result<(), Failure> {
     };
     let options = a.interp.options(&grid)?;
     let axes = grid.axis_names();
+    let tables = if per_line {
+        let labels: Vec<&str> = lines.iter().flatten().map(String::as_str).collect();
+        grid.tables(&dataset, &labels)
+    } else {
+        grid.table(&dataset, None).map(|t| vec![t])
+    }
+    .map_err(interp_failure)?;
     let mut results = Vec::new();
-    for line in &lines {
-        let table = grid
-            .table(&dataset, line.as_deref())
-            .map_err(interp_failure)?;
-        let ip = Interpolator::new(&table, &options).map_err(interp_failure)?;
+    for (line, table) in lines.iter().zip(&tables) {
+        let ip = Interpolator::new(table, &options).map_err(interp_failure)?;
         let samples = ip.evaluate_many(&points);
         for (p, s) in points.iter().zip(samples) {
             results.push((line.clone(), p.clone(), s.map_err(interp_failure)?));

@@ -114,14 +114,15 @@ impl Problem<'_> {
         let x = self.x_of(z);
         let mut r = Vec::with_capacity(self.obs.len());
         let mut jac = Vec::with_capacity(self.obs.len());
+        let mut gradient = vec![0.0; x.len()];
         for ((m, &y), &s) in self.models.iter().zip(self.obs).zip(self.sigma) {
-            let smp = m.evaluate(&x).ok()?;
-            r.push((smp.value - y) / s);
+            let value = m.evaluate_into(&x, &mut gradient).ok()?;
+            r.push((value - y) / s);
             let row: Vec<f64> = self
                 .free
                 .iter()
                 .map(|&d| {
-                    let g = smp.gradient[d] / s;
+                    let g = gradient[d] / s;
                     if wrt_x {
                         return g;
                     }

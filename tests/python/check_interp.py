@@ -3,8 +3,8 @@
 
 Usage: check_interp.py --binary target/release/linegrid GRID.h5
 
-1. Multilinear: `linegrid sample --method linear` with every axis in its linear coordinate
-   against scipy.interpolate.RegularGridInterpolator(method="linear") built from the file's
+1. Multilinear: `linegrid sample --method linear --no-log-value` (the value itself, not the
+   default log10) with every axis in its linear coordinate against scipy.interpolate.RegularGridInterpolator(method="linear") built from the file's
    axes and data, at seeded random points inside the grid, for every line; tolerance 1e-12
    relative (reference: scipy.interpolate.RegularGridInterpolator).
 2. Fit: scripts/fit_example.py (h5py + scipy only) against `linegrid fit --method linear
@@ -56,7 +56,7 @@ def multilinear(binary, path):
     coords = []
     for a in axes:
         coords += ["--coord", f"{a}=linear"]
-    cmd = [binary, "sample", path, "--points", name, "--method", "linear", "--json"] + coords
+    cmd = [binary, "sample", path, "--points", name, "--method", "linear", "--no-log-value", "--json"] + coords
     out = subprocess.run(cmd, capture_output=True, text=True)
     os.unlink(name)
     if out.returncode != 0:
