@@ -187,13 +187,13 @@ fn sample_reproduces_stored_nodes_and_refuses_bad_input() {
 }
 
 #[test]
-fn a_zero_value_under_the_default_log10_is_refused_with_the_way_out() {
+fn a_line_with_zero_values_is_interpolated_in_the_value_and_said_so() {
     // He II 3-4 in cool gas: no He II, so W = 0 at every node (stored as converged).
     let tmp = tempfile::tempdir().unwrap();
     let spec = tmp.path().join("cool.toml");
     std::fs::write(
         &spec,
-        "[grid]\ntitle = \"cool\"\noutput = \"x.h5\"\n\n[parameters]\ntemperature = { values = [5000.0, 5500.0, 6000.0] }\ngas_pressure = 1.0e4\nhydrogen_column = 1.0e22\nbackground_ratio = 1.2\n\n[lines]\nlabels = [\"He II 3-4\"]\n",
+        "[grid]\ntitle = \"cool\"\noutput = \"x.h5\"\n\n[parameters]\ntemperature = { values = [5000.0, 5500.0, 6000.0] }\ngas_pressure = 1.0e4\nhydrogen_column = 1.0e22\nbackground_ratio = 1.2\n\n[lines]\nlabels = [\"He II 3-4\", \"H-alpha\"]\n",
     )
     .unwrap();
     let grid = tmp.path().join("cool.h5");
@@ -206,7 +206,18 @@ fn a_zero_value_under_the_default_log10_is_refused_with_the_way_out() {
     ]);
     assert!(o.status.success(), "{}", stderr(&o));
     let g = grid.to_str().unwrap();
+    // Default: log10 where every value is positive (H-alpha), the value itself elsewhere,
+    // with a note on stderr and the choice in the JSON.
+    let o = run(&["sample", g, "--at", "temperature=5200", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["value_space"], "auto");
+    assert_eq!(v["linear_value_lines"], serde_json::json!(["He II 3-4"]));
     let o = run(&["sample", g, "--at", "temperature=5200"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("He II 3-4"), "{}", stderr(&o));
+    // Forcing log10 refuses the zero values and names the way out.
+    let o = run(&["sample", g, "--at", "temperature=5200", "--log-value"]);
     assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
     let e = stderr(&o);
     assert!(

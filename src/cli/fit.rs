@@ -145,8 +145,18 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
     }
     let labels: Vec<&str> = obs.iter().map(|o| o.0.as_str()).collect();
     let mut interps = Vec::new();
-    for t in grid.tables(&dataset, &labels).map_err(interp_failure)? {
-        interps.push(Interpolator::new(&t, &options).map_err(interp_failure)?);
+    let mut linear_lines: Vec<String> = Vec::new();
+    for (t, label) in grid
+        .tables(&dataset, &labels)
+        .map_err(interp_failure)?
+        .into_iter()
+        .zip(&labels)
+    {
+        let opts = a.interp.options_for(&options, &t);
+        if !opts.log_value {
+            linear_lines.push(label.to_string());
+        }
+        interps.push(Interpolator::new(&t, &opts).map_err(interp_failure)?);
     }
     let refs: Vec<&Interpolator> = interps.iter().collect();
     let y: Vec<f64> = obs.iter().map(|o| o.1).collect();
@@ -208,7 +218,9 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
             "grid": a.grid.display().to_string(),
             "dataset": dataset,
             "method": options.method.name(),
-            "log_value": options.log_value,
+            "value_space": a.interp.value_space_rule(),
+            "log_value": linear_lines.is_empty(),
+            "linear_value_lines": linear_lines,
             "observations": obs.len(),
             "free_axes": free,
             "degenerate": res.degenerate,
@@ -227,10 +239,13 @@ pub fn run(a: FitArgs) -> Result<(), Failure> {
             .collect::<Vec<_>>()
             .join(", "),
         options.method.name(),
-        if options.log_value {
-            " in log10 of the value"
-        } else {
-            ""
+        match (linear_lines.is_empty(), interps.len() == linear_lines.len()) {
+            (true, _) => " in log10 of the value".to_string(),
+            (false, true) => String::new(),
+            (false, false) => format!(
+                " in log10 of the value, except {} (zero or negative values in the grid)",
+                linear_lines.join(", ")
+            ),
         }
     );
     for (i, m) in res.minima.iter().enumerate() {

@@ -60,8 +60,10 @@ pub struct InterpArgs {
     /// Interpolation scheme (default cubic: the smallest error in `linegrid audit`)
     #[arg(long, value_enum, default_value = "cubic")]
     pub method: MethodArg,
-    /// Interpolate log10 of the value, the default (values must be positive at the
-    /// stencil's nodes; a point whose stencil touches a zero or negative value is refused)
+    /// Interpolate log10 of the value for every line (values must be positive at the
+    /// stencil's nodes; a point whose stencil touches a zero or negative value is refused).
+    /// Default: log10 for each line whose converged values are all positive, the value itself
+    /// for the others (e.g. a line that vanishes in part of the grid); the output says which
     #[arg(long, overrides_with = "no_log_value")]
     pub log_value: bool,
     /// Interpolate the value itself instead of its log10
@@ -99,6 +101,38 @@ impl InterpArgs {
             log_value: !self.no_log_value,
             clamp: self.clamp,
         })
+    }
+
+    /// The options for one table: the value space as forced by --log-value/--no-log-value,
+    /// else log10 exactly when every converged, finite node value of the table is positive.
+    pub fn options_for(&self, base: &Options, table: &linegrid::interp::Table) -> Options {
+        let log_value = if self.log_value {
+            true
+        } else if self.no_log_value {
+            false
+        } else {
+            table
+                .values
+                .iter()
+                .zip(&table.status)
+                .filter(|(v, s)| **s == 0 && v.is_finite())
+                .all(|(v, _)| *v > 0.0)
+        };
+        Options {
+            log_value,
+            ..base.clone()
+        }
+    }
+
+    /// How the value space was chosen, for output.
+    pub fn value_space_rule(&self) -> &'static str {
+        if self.log_value {
+            "log10"
+        } else if self.no_log_value {
+            "value"
+        } else {
+            "auto"
+        }
     }
 }
 
@@ -316,8 +350,13 @@ pub fn run(a: SampleArgs) -> Result<(), Failure> {
     }
     .map_err(interp_failure)?;
     let mut results = Vec::new();
+    let mut linear_lines: Vec<String> = Vec::new();
     for (line, table) in lines.iter().zip(&tables) {
-        let ip = Interpolator::new(table, &options).map_err(interp_failure)?;
+        let opts = a.interp.options_for(&options, table);
+        if !opts.log_value {
+            linear_lines.push(line.clone().unwrap_or_else(|| dataset.clone()));
+        }
+        let ip = Interpolator::new(table, &opts).map_err(interp_failure)?;
         let samples = ip.evaluate_many(&points);
         for (p, s) in points.iter().zip(samples) {
             results.push((line.clone(), p.clone(), s.map_err(interp_failure)?));
@@ -362,10 +401,18 @@ pub fn run(a: SampleArgs) -> Result<(), Failure> {
             "grid": a.grid.display().to_string(),
             "dataset": dataset,
             "method": options.method.name(),
-            "log_value": options.log_value,
+            "value_space": a.interp.value_space_rule(),
+            "log_value": linear_lines.is_empty(),
+            "linear_value_lines": linear_lines,
             "coords": coords,
             "samples": rows,
         }));
+    }
+    if !linear_lines.is_empty() && a.interp.value_space_rule() == "auto" {
+        eprintln!(
+            "linegrid: note: interpolated in the value itself, not its log10 (zero or negative values in the grid): {}",
+            linear_lines.join(", ")
+        );
     }
     let mut o = String::new();
     let mut header: Vec<String> = axes.clone();
