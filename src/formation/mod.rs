@@ -452,6 +452,11 @@ pub fn line_strength(
         }
         _ => None,
     };
+    let drop = rt::E3Drop::new(tau_c);
+    let (ec_view, one_minus_ec_view) = match opts.view {
+        View::Intensity(mu) => ((-tau_c / mu).exp(), -(-tau_c / mu).exp_m1()),
+        View::Flux => (0.0, 0.0),
+    };
     // The integrand as a function of the wavelength offset x (cm).
     let profile = |x: f64| -> f64 {
         if let Some((mu, t_over_tb, ec, one_minus_ec)) = intensity_bg {
@@ -482,13 +487,25 @@ pub fn line_strength(
             Background::None => 0.0,
         };
         let tau = su.tau_line(x);
-        let f = emergent(opts.view, tau + tau_c, s, bg);
-        let fc = emergent(opts.view, tau_c, s, bg);
+        // F_c − F = (I_bg − S) × loss, without forming the difference of two fluxes (which
+        // would leave rounding noise of ~1e-16 F_c in the depth of a weak line):
+        // flux: 2π [S/2 + (I_bg − S) E₃] gives loss = 2π (E₃(τ_c) − E₃(τ_c + τ));
+        // intensity: S + (I_bg − S) e^{−τ_tot/μ} gives loss = e^{−τ_c/μ} (1 − e^{−τ/μ}).
+        let (loss, fc) = match opts.view {
+            View::Flux => (
+                2.0 * std::f64::consts::PI * drop.at(tau),
+                2.0 * std::f64::consts::PI * (bg * drop.e3() + s * drop.deficit()),
+            ),
+            View::Intensity(mu) => (
+                ec_view * -(-tau / mu).exp_m1(),
+                bg * ec_view + s * one_minus_ec_view,
+            ),
+        };
         if absorption {
-            if fc > 0.0 { 1.0 - f / fc } else { 0.0 }
+            if fc > 0.0 { (bg - s) * loss / fc } else { 0.0 }
         } else {
             // F_λ = F_ν c/λ²
-            (f - fc) * C / (lam * lam)
+            (s - bg) * loss * C / (lam * lam)
         }
     };
     let tau0 = su.tau_line(0.0);
