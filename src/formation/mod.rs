@@ -389,6 +389,17 @@ impl LineSetup {
         }
     }
 
+    /// Coefficient K of the quasi-static Stark wing τ_line ≈ K |x|^{−5/2} (x in cm) of the
+    /// shifted components, for hydrogen-like lines (0 without a Stark profile).
+    pub fn stark_wing_coefficient(&self) -> f64 {
+        self.stark.as_ref().map_or(0.0, |sp| {
+            let per_phi_nu =
+                self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
+            per_phi_nu * sp.far_wing_coefficient() * self.lambda0 * self.lambda0 / C
+                * self.thickness
+        })
+    }
+
     /// Coefficient A of the Lorentz wing τ_line ≈ A/x² far from the core (x in cm).
     pub fn wing_coefficient(&self) -> f64 {
         // H(a, v) → a/(√π v²), v = Δν/Δν_D, Δν ≈ c x/λ₀².
@@ -516,6 +527,7 @@ pub fn line_strength(
     };
     let scale = quadrature::LineScale::doppler(core, tau0)
         .and_then(|s| s.with_wing(su.wing_coefficient()))
+        .and_then(|s| s.with_steep_wing(su.stark_wing_coefficient(), 2.5))
         .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
         .expect("a positive Doppler width");
     let integral = quadrature::integrate_line(profile, &scale, 5e-5);
