@@ -40,6 +40,11 @@ use crate::opacity::stark::StarkProfile;
 use crate::opacity::voigt::voigt_h;
 use crate::transfer::{quadrature, slab as rt, special};
 
+/// Damping wings are integrated numerically out to |Δλ| = this fraction of λ₀ and continued
+/// analytically beyond as the 1/Δλ² law from there (the Planck factors of the depth are
+/// those at ±0.1 λ₀ in that continuation).
+pub const WING_REACH: f64 = 0.1;
+
 /// How big the slab is.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -528,12 +533,13 @@ pub fn line_strength(
     let scale = quadrature::LineScale::doppler(core, tau0)
         .and_then(|s| s.with_wing(su.wing_coefficient()))
         .and_then(|s| s.with_steep_wing(su.stark_wing_coefficient(), 2.5))
+        .and_then(|s| s.with_reach(WING_REACH * su.lambda0))
         .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
         .expect("a positive Doppler width");
     let integral = quadrature::integrate_line(profile, &scale, 5e-5);
     let centre = profile(0.0);
-    let fwhm = half_width(&profile, centre, su.widths.doppler_cm, 1.0)
-        + half_width(&profile, centre, su.widths.doppler_cm, -1.0);
+    let guess = half_width_guess(&scale);
+    let fwhm = half_width(&profile, centre, guess, 1.0) + half_width(&profile, centre, guess, -1.0);
     let (equivalent_width, emission, central_depth) = if absorption {
         (Some(integral.value * 1e8), None, centre)
     } else {
@@ -561,26 +567,61 @@ pub fn line_strength(
     })
 }
 
+/// A first guess of the half width at half depth from the line's scales: where the line's
+/// optical depth has fallen to τ_h, the depth at which a screen 1 − e^{−τ} is half its
+/// central value, (1 − e^{−τ_h}) = (1 − e^{−τ₀})/2, taking the farthest of the Doppler core
+/// (s √ln(τ₀/τ_h)), the damping wing (√(A/τ_h)) and the steep wing ((K/τ_h)^{1/q}).
+fn half_width_guess(scale: &quadrature::LineScale) -> f64 {
+    let s = scale.core();
+    let tau0 = scale.peak_optical_depth();
+    let tau_h = -(0.5 * (1.0 + (-tau0).exp())).ln();
+    let mut x = s * (tau0 / tau_h).max(2.0).ln().sqrt();
+    if tau_h > 0.0 {
+        if let Some(a) = scale.wing() {
+            x = x.max((a / tau_h).sqrt());
+        }
+        if let Some((k, q)) = scale.steep_wing() {
+            x = x.max((k / tau_h).powf(1.0 / q));
+        }
+    }
+    if x.is_finite() && x > 0.0 { x } else { s }
+}
+
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
-/// central value: bracketed by doubling, then refined by the Illinois variant of false
+/// central value: bracketed from the guess `start` by doubling outward or halving inward,
+/// then refined by the Illinois variant of false
 /// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
-fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
+fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
     }
     let half = 0.5 * centre;
     // g > 0 inside the half-maximum, g < 0 outside.
     let g = |x: f64| (profile(sign * x) - half) * centre.signum();
-    let (mut lo, mut hi) = (0.0, core.max(1e-16));
+    let (mut lo, mut hi) = (0.0, start.max(1e-16));
     let (mut g_lo, mut g_hi) = (centre.abs() - half.abs(), g(hi));
     let mut guard = 0;
-    while g_hi > 0.0 {
-        (lo, g_lo) = (hi, g_hi);
-        hi *= 2.0;
-        g_hi = g(hi);
-        guard += 1;
-        if guard > 200 {
-            return f64::INFINITY;
+    if g_hi > 0.0 {
+        while g_hi > 0.0 {
+            (lo, g_lo) = (hi, g_hi);
+            hi *= 2.0;
+            g_hi = g(hi);
+            guard += 1;
+            if guard > 200 {
+                return f64::INFINITY;
+            }
+        }
+    } else {
+        // the guess is outside: halve until inside (or keep lo = 0)
+        let mut x = 0.5 * hi;
+        for _ in 0..60 {
+            let gx = g(x);
+            if gx > 0.0 {
+                (lo, g_lo) = (x, gx);
+                break;
+            }
+            (hi, g_hi) = (x, gx);
+            x *= 0.5;
         }
     }
     // Invariant: g(lo) > 0 >= g(hi). `side` remembers which end moved last (Illinois).

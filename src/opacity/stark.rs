@@ -724,7 +724,8 @@ fn fourier_h_row(dy: f64, count: usize, r: f64) -> Vec<f64> {
     }
     let umax = hi;
     let y_max = dy * count.saturating_sub(1) as f64;
-    let panels = ((y_max * umax * umax / 2.0).ceil() as usize + (umax / 0.2).ceil() as usize).max(8);
+    let panels =
+        ((y_max * umax * umax / 2.0).ceil() as usize + (umax / 0.2).ceil() as usize).max(8);
     let h = umax / panels as f64;
     let (x, w) = gl12();
     let mut weight = Vec::with_capacity(panels * x.len());

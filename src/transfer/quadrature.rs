@@ -148,6 +148,8 @@ const CORE_GONE: f64 = 1.0e-12;
 const WING_START_MIN: f64 = 4.0;
 /// The analytic tail starts at this multiple of the wing panel's start.
 const TAIL_START: f64 = 1.0e3;
+/// The tail never starts closer than this multiple of the wing panel's start.
+const REACH_MIN: f64 = 10.0;
 /// The tail of a steep wing (q > 2) starts at this multiple of the wing panel's start: it
 /// holds (1/100)^{q−1} of the wing there, 10⁻³ for q = 5/2.
 const STEEP_TAIL_START: f64 = 100.0;
@@ -167,6 +169,8 @@ pub enum InvalidLineScale {
     Wing(f64),
     /// A power-law wing's exponent must be finite and above 1.
     WingExponent(f64),
+    /// The reach of the numerical integration must be positive.
+    Reach(f64),
 }
 
 impl fmt::Display for InvalidLineScale {
@@ -181,6 +185,7 @@ impl fmt::Display for InvalidLineScale {
                 f,
                 "damping-wing coefficient must be non-negative and finite (got {v})"
             ),
+            Self::Reach(v) => write!(f, "integration reach must be positive (got {v})"),
             Self::WingExponent(v) => {
                 write!(f, "wing exponent must be finite and above 1 (got {v})")
             }
@@ -198,6 +203,7 @@ pub struct LineScale {
     peak_optical_depth: f64,
     wing: Option<f64>,
     steep: Option<(f64, f64)>,
+    reach: f64,
 }
 
 impl LineScale {
@@ -216,6 +222,7 @@ impl LineScale {
             peak_optical_depth,
             wing: None,
             steep: None,
+            reach: f64::INFINITY,
         })
     }
 
@@ -266,6 +273,19 @@ impl LineScale {
             steep: (coefficient > 0.0).then_some((coefficient, exponent)),
             ..self
         })
+    }
+
+    /// The same line whose wings are integrated numerically no further than |x| = `reach`
+    /// (where the caller's depth stops being a smooth power-law wing, e.g. a fraction of
+    /// the line's wavelength); beyond, the analytic tails continue D(±X) as the wing's power
+    /// law. It never brings the tail closer than 10 wing-panel starts, and applies only to
+    /// damping-dominated wings (a steep wing's tail keeps its start). Non-positive or NaN
+    /// values are refused.
+    pub fn with_reach(self, reach: f64) -> Result<Self, InvalidLineScale> {
+        if !(reach > 0.0) {
+            return Err(InvalidLineScale::Reach(reach));
+        }
+        Ok(Self { reach, ..self })
     }
 
     /// Core width s.
@@ -503,11 +523,12 @@ fn plan(scale: &LineScale) -> Plan {
         Plan {
             edge,
             inner,
+            // (a steep tail keeps its start: its error estimate grows as X shrinks)
             outer: if power == 1.0 {
-                TAIL_START
+                (TAIL_START * inner).min(scale.reach.max(REACH_MIN * inner))
             } else {
-                STEEP_TAIL_START
-            } * inner,
+                STEEP_TAIL_START * inner
+            },
             power,
         }
     } else {

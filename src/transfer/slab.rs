@@ -297,7 +297,11 @@ mod tests {
                 1e-30, 1e-17, 1e-12, 1e-8, 1e-5, 1e-3, 0.01, 0.05, 0.099, 0.101, 0.3, 0.9, 1.0,
                 3.0, 10.0, 100.0,
             ] {
-                let tau = if a > 0.0 && tau < 1.0 { tau * a.max(1e-3) } else { tau };
+                let tau = if a > 0.0 && tau < 1.0 {
+                    tau * a.max(1e-3)
+                } else {
+                    tau
+                };
                 if a + tau <= a * (1.0 + 1e-13) && a > 0.0 {
                     // below the resolution of a + τ the twin cannot tell; the series is
                     // then its linear term τ E₂(a)
