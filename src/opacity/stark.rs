@@ -33,7 +33,8 @@
 //! beyond; error ≤ 2e-9 against direct integration. The Doppler convolution of a pair,
 //! H(y; r) = (Q ∗ G_r)(y) with G_r the unit Gaussian of 1/e half width r (the Doppler width
 //! in units of the component's C F₀), is one universal function of two variables. It is
-//! tabulated once (first use, ~40k Fourier integrals) in ln(b H) on a grid in (v = y/b,
+//! tabulated (~40k Fourier integrals, each row of 403 values of v on one set of nodes with
+//! rotated phases, a row built at its first use) in ln(b H) on a grid in (v = y/b,
 //! ln r), b = √(1 + r²), for 0.8 ≤ r ≤ 1000, v ≤ 8; outside that: Gauss–Hermite quadrature
 //! over Q (4–12 nodes) for r < 0.8, G_r plus the first two Holtsmark corrections for
 //! r > 1000, and the double asymptotic series in y^{−3/2} and (r/y)² for the far wing.
@@ -796,16 +797,18 @@ const NP: usize = 100;
 const NT1: usize = 400;
 
 struct GaussTable {
-    /// ln(b H(b v; r)) at v_i = (i − 2) hv, p_j = p0 + (j − 1) hp (row-major in j); two
-    /// mirrored rows of v < 0 and two extra columns so every stencil lies inside.
-    f: Vec<f64>,
+    /// Rows j of ln(b H(b v; r)) at v_i = (i − 2) hv, p_j = p0 + (j − 1) hp, each built at
+    /// its first use (a profile needs four rows per component, so a process builds only
+    /// the rows of its Doppler ratios, and threads build different rows at once); two
+    /// mirrored entries of v < 0 and two extra so every stencil lies inside.
+    rows: Vec<OnceLock<Vec<f64>>>,
     hv: f64,
     p0: f64,
     hp: f64,
     nv: usize,
     np: usize,
-    t1: Vec<f64>,
-    t2: Vec<f64>,
+    /// T₁ and T₂ of `fourier_tj` at u_i = i ht1 (r > R_HI only), built at first use.
+    large_r: OnceLock<(Vec<f64>, Vec<f64>)>,
     ht1: f64,
     /// Gauss–Hermite rules of 4, 8 and 12 nodes (for r < 0.05, < 0.3, < R_LO).
     gh: [(Vec<f64>, Vec<f64>); 3],
@@ -820,37 +823,51 @@ fn gauss_table() -> &'static GaussTable {
         let p0 = p_lo - hp;
         let nv = NV + 5; // v from −2hv to (NV+2)hv
         let np = NP + 4; // p from p_lo − hp to p_hi + 2hp
-        let mut f = vec![0.0; nv * np];
-        for j in 0..np {
-            let r = (p0 + j as f64 * hp).exp();
-            let b = (1.0 + r * r).sqrt();
-            let row = fourier_h_row(b * hv, nv - 2, r);
-            for (i, h) in row.into_iter().enumerate() {
-                f[j * nv + i + 2] = (b * h).ln();
-            }
-            f[j * nv] = f[j * nv + 4];
-            f[j * nv + 1] = f[j * nv + 3];
-        }
-        let ht1 = (V_MAX + 1.0) / NT1 as f64;
-        let t1 = (0..=NT1 + 2)
-            .map(|i| fourier_tj(1, i as f64 * ht1))
-            .collect();
-        let t2 = (0..=NT1 + 2)
-            .map(|i| fourier_tj(2, i as f64 * ht1))
-            .collect();
         GaussTable {
-            f,
+            rows: (0..np).map(|_| OnceLock::new()).collect(),
             hv,
             p0,
             hp,
             nv,
             np,
-            t1,
-            t2,
-            ht1,
+            large_r: OnceLock::new(),
+            ht1: (V_MAX + 1.0) / NT1 as f64,
             gh: [gauss_hermite(4), gauss_hermite(8), gauss_hermite(12)],
         }
     })
+}
+
+impl GaussTable {
+    /// Row j of the table, built on first use.
+    fn row(&self, j: usize) -> &[f64] {
+        self.rows[j].get_or_init(|| {
+            let nv = self.nv;
+            let r = (self.p0 + j as f64 * self.hp).exp();
+            let b = (1.0 + r * r).sqrt();
+            let mut f = vec![0.0; nv];
+            for (i, h) in fourier_h_row(b * self.hv, nv - 2, r)
+                .into_iter()
+                .enumerate()
+            {
+                f[i + 2] = (b * h).ln();
+            }
+            f[0] = f[4];
+            f[1] = f[3];
+            f
+        })
+    }
+
+    /// (T₁, T₂) tables, built on first use.
+    fn large_r(&self) -> &(Vec<f64>, Vec<f64>) {
+        self.large_r.get_or_init(|| {
+            let t = |j| {
+                (0..=NT1 + 2)
+                    .map(|i| fourier_tj(j, i as f64 * self.ht1))
+                    .collect()
+            };
+            (t(1), t(2))
+        })
+    }
 }
 
 /// A component's Doppler ratio r = Δλ_D/(C F₀), with what `gauss_h` needs precomputed.
@@ -913,9 +930,10 @@ fn gauss_h(y: f64, s: &RatioStencil) -> f64 {
     }
     if r > R_HI {
         let u = y / r;
-        let (i, w) = stencil(u, 0.0, t.ht1, t.t1.len());
-        let t1 = w[0] * t.t1[i] + w[1] * t.t1[i + 1] + w[2] * t.t1[i + 2] + w[3] * t.t1[i + 3];
-        let t2 = w[0] * t.t2[i] + w[1] * t.t2[i + 1] + w[2] * t.t2[i + 2] + w[3] * t.t2[i + 3];
+        let (tt1, tt2) = t.large_r();
+        let (i, w) = stencil(u, 0.0, t.ht1, tt1.len());
+        let t1 = w[0] * tt1[i] + w[1] * tt1[i + 1] + w[2] * tt1[i + 2] + w[3] * tt1[i + 3];
+        let t2 = w[0] * tt2[i] + w[1] * tt2[i + 1] + w[2] * tt2[i + 2] + w[3] * tt2[i + 3];
         return (-u * u).exp() / (r * PI.sqrt()) + t1 * r.powf(-2.5) + t2 * r.powi(-4);
     }
     let sv = v / t.hv + 2.0;
@@ -923,7 +941,7 @@ fn gauss_h(y: f64, s: &RatioStencil) -> f64 {
     let wv = lagrange4(sv - i as f64);
     let mut f = 0.0;
     for (a, &wpa) in s.wp.iter().enumerate() {
-        let row = &t.f[(s.j + a) * t.nv + i - 1..(s.j + a) * t.nv + i + 3];
+        let row = &t.row(s.j + a)[i - 1..i + 3];
         f += wpa * (wv[0] * row[0] + wv[1] * row[1] + wv[2] * row[2] + wv[3] * row[3]);
     }
     f.exp() / s.b
@@ -1667,9 +1685,13 @@ mod tests {
         let t0 = std::time::Instant::now();
         let _ = holtsmark(3.0);
         let t1 = t0.elapsed();
-        let _ = gauss_table();
+        let t = gauss_table();
+        for j in 0..t.np {
+            let _ = t.row(j);
+        }
+        let _ = t.large_r();
         eprintln!(
-            "tables built: Holtsmark {:.1} ms, Holtsmark (x) Gauss {:.1} ms",
+            "tables built: Holtsmark {:.1} ms, Holtsmark (x) Gauss (every row) {:.1} ms",
             t1.as_secs_f64() * 1e3,
             t0.elapsed().as_secs_f64() * 1e3
         );

@@ -1138,6 +1138,46 @@ mod tests {
         assert!(mean <= 96.0 && mean < 0.75 * blind_mean);
     }
 
+    #[test]
+    fn reach_keeps_damping_lines_accurate() {
+        // Voigt lines integrated numerically only to |x| = 100 core widths (the tail from
+        // there is the A/x² continuation) against the brute force to 10⁴ and beyond.
+        let mut rows = Vec::new();
+        for &a in &[1e-2, 0.1] {
+            let mut v = SlowVoigt::new(a);
+            let h0 = v.h(0.0);
+            for &tau0 in &[1e-1, 1e2, 1e4] {
+                let full = LineScale::voigt(1.0, tau0, a).unwrap();
+                let near = full.with_reach(100.0).unwrap();
+                let mut depth = |x: f64| -(-tau0 * v.h(x) / h0).exp_m1();
+                let got = integrate_line(&mut depth, &near, 1e-4);
+                let x_max = (full.wing().unwrap() / 1e-8).sqrt().max(1e4);
+                let reference = brute_force_line(&mut depth, &full, x_max, BRUTE_INTERVALS);
+                let err = rel(got.value, reference);
+                assert!(got.converged && err <= 1e-4, "a={a} τ₀={tau0:e}: {err:e}");
+                assert!(
+                    (got.value - reference).abs() <= got.error,
+                    "a={a} τ₀={tau0:e}"
+                );
+                rows.push((got.evaluations, err));
+            }
+        }
+        let (mean, worst) = summary(&rows);
+        eprintln!("Voigt lines, reach 100 s: mean {mean:.1} evaluations, worst error {worst:.1e}");
+        assert!(
+            LineScale::doppler(1.0, 1.0)
+                .unwrap()
+                .with_reach(0.0)
+                .is_err()
+        );
+        assert!(
+            LineScale::doppler(1.0, 1.0)
+                .unwrap()
+                .with_reach(f64::NAN)
+                .is_err()
+        );
+    }
+
     /// A boxed depth law.
     type Depth<'a> = Box<dyn Fn(f64) -> f64 + 'a>;
 
