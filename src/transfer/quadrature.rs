@@ -44,6 +44,12 @@
 //!   constant in v (an exact constant in the linear regime): three Gauss points suffice;
 //! - beyond X, the analytic tail (below), with its amplitude taken from D(±X).
 //!
+//! A caller may give a reach R (`with_reach`): where the depth stops being a pure power law
+//! on the scale R (for a spectral line, the Planck factors across a tenth of its
+//! wavelength). A damping-wing tail then starts at X = max(min(1000 x_I, R), 10 x_I), and a
+//! wing panel that would run past R starts as two panels split at the geometric middle of
+//! its v range, which resolves the depth's variation near R without bisections.
+//!
 //! A line may also have a steeper power-law wing τ ≈ K|x|^{−q} (`with_steep_wing`; the
 //! quasi-static Stark wing has q = 5/2), alone or with the damping wing. It enters the
 //! depth τ_w(x) = A/x² + K x^{−q} used for x_g and the edge test above, the wing saturates
@@ -77,7 +83,8 @@
 //!
 //! Pure Doppler lines τ₀ ∈ [10⁻³, 10⁸]: mean 53 evaluations per line. Voigt lines
 //! a ∈ {10⁻³, 10⁻², 0.1, 1}, τ₀ ∈ [10⁻², 10⁶]: mean 62. Lines with a |x|^{−5/2} wing (with
-//! and without a damping wing): mean 90 (216 without the steep-wing hint). Errors stay below 2×10⁻⁶ at
+//! and without a damping wing): mean 90 (216 without the steep-wing hint). Voigt lines with a
+//! reach of 100 Doppler widths: mean 80. Errors stay below 2×10⁻⁶ at
 //! `rtol` = 10⁻⁴ (see the tests for the exact figures). Wrong hints (τ₀ off by 10×, A off by
 //! 3×, no τ₀ at all) cost more evaluations, not accuracy.
 
@@ -487,6 +494,9 @@ struct Plan {
     outer: f64,
     /// Power p of the wing map x = x_I v^{−p}: 1/(q − 1) for the wing dominating the panel.
     power: f64,
+    /// Whether the wing panel starts split in two (geometrically in v): where it runs to the
+    /// reach, beyond which the depth varies on the reach's own scale.
+    split: bool,
 }
 
 fn plan(scale: &LineScale) -> Plan {
@@ -520,16 +530,24 @@ fn plan(scale: &LineScale) -> Plan {
             Some((k, q)) if k * middle.powf(-q) > lorentz => 1.0 / (q - 1.0),
             _ => 1.0,
         };
+        let start = if power == 1.0 {
+            TAIL_START
+        } else {
+            STEEP_TAIL_START
+        } * inner;
+        // the wing panel would run past the reach (a steep tail keeps its start anyway: its
+        // error estimate grows as X shrinks)
+        let split = scale.reach < start;
         Plan {
             edge,
             inner,
-            // (a steep tail keeps its start: its error estimate grows as X shrinks)
-            outer: if power == 1.0 {
-                (TAIL_START * inner).min(scale.reach.max(REACH_MIN * inner))
+            outer: if split && power == 1.0 {
+                scale.reach.max(REACH_MIN * inner)
             } else {
-                STEEP_TAIL_START * inner
+                start
             },
             power,
+            split,
         }
     } else {
         let mut cut = s * (tau0.max(1.0) / CORE_GONE).ln().sqrt();
@@ -541,6 +559,7 @@ fn plan(scale: &LineScale) -> Plan {
             inner: cut,
             outer: cut,
             power: 1.0,
+            split: false,
         }
     }
 }
@@ -604,7 +623,14 @@ pub fn integrate_line(depth: impl FnMut(f64) -> f64, scale: &LineScale, rtol: f6
                     start: p.inner,
                     power: p.power,
                 };
-                panels.push(f.panel(map, Rule::Gk7, map.variable_at(p.outer), 1.0));
+                let v_tail = map.variable_at(p.outer);
+                if p.split {
+                    let v_mid = v_tail.sqrt();
+                    panels.push(f.panel(map, Rule::Gk7, v_tail, v_mid));
+                    panels.push(f.panel(map, Rule::Gk7, v_mid, 1.0));
+                } else {
+                    panels.push(f.panel(map, Rule::Gk7, v_tail, 1.0));
+                }
                 let d_x = f.at(sign * p.outer);
                 let x = p.outer;
                 let tau_l = scale.wing.map_or(0.0, |a| a / (x * x));
