@@ -289,7 +289,7 @@ impl LineScale {
     /// damping-dominated wings (a steep wing's tail keeps its start). Non-positive or NaN
     /// values are refused.
     pub fn with_reach(self, reach: f64) -> Result<Self, InvalidLineScale> {
-        if !(reach > 0.0) {
+        if reach.is_nan() || reach <= 0.0 {
             return Err(InvalidLineScale::Reach(reach));
         }
         Ok(Self { reach, ..self })
@@ -349,8 +349,12 @@ enum Map {
     Linear { sign: f64 },
     /// x = σ s sinh u: a core of width s with logarithmic wings.
     Core { sign: f64, width: f64 },
-    /// x = σ x_I u^{−p}: a power-law wing starting at x_I (u = 1).
-    Wing { sign: f64, start: f64, power: f64 },
+    /// x = σ x_I u^{−p}: a power-law wing starting at x_I (u = 1); `power` None is p = 1.
+    Wing {
+        sign: f64,
+        start: f64,
+        power: Option<f64>,
+    },
 }
 
 impl Map {
@@ -364,14 +368,13 @@ impl Map {
             } => (sign * (centre + width * u.sinh()), width * u.cosh()),
             Map::Linear { sign } => (sign * u, 1.0),
             Map::Core { sign, width } => (sign * width * u.sinh(), width * u.cosh()),
-            Map::Wing { sign, start, power } => {
-                if power == 1.0 {
-                    (sign * start / u, start / (u * u))
-                } else {
-                    let x = start * u.powf(-power);
-                    (sign * x, power * x / u)
+            Map::Wing { sign, start, power } => match power {
+                None => (sign * start / u, start / (u * u)),
+                Some(p) => {
+                    let x = start * u.powf(-p);
+                    (sign * x, p * x / u)
                 }
-            }
+            },
         }
     }
 
@@ -381,13 +384,10 @@ impl Map {
             Map::Edge { centre, width, .. } => ((distance - centre) / width).asinh(),
             Map::Linear { .. } => distance,
             Map::Core { width, .. } => (distance / width).asinh(),
-            Map::Wing { start, power, .. } => {
-                if power == 1.0 {
-                    start / distance
-                } else {
-                    (start / distance).powf(1.0 / power)
-                }
-            }
+            Map::Wing { start, power, .. } => match power {
+                None => start / distance,
+                Some(p) => (start / distance).powf(1.0 / p),
+            },
         }
     }
 }
@@ -492,8 +492,9 @@ struct Plan {
     inner: f64,
     /// Start of the analytic tail (with a wing) or cut-off (without).
     outer: f64,
-    /// Power p of the wing map x = x_I v^{−p}: 1/(q − 1) for the wing dominating the panel.
-    power: f64,
+    /// Power p of the wing map x = x_I v^{−p}: 1/(q − 1) where a steep wing dominates the
+    /// panel (None: p = 1, a damping wing).
+    power: Option<f64>,
     /// Whether the wing panel starts split in two (geometrically in v): where it runs to the
     /// reach, beyond which the depth varies on the reach's own scale.
     split: bool,
@@ -527,10 +528,10 @@ fn plan(scale: &LineScale) -> Plan {
         let middle = inner * STEEP_TAIL_START.sqrt();
         let lorentz = scale.wing.map_or(0.0, |a| a / (middle * middle));
         let power = match scale.steep {
-            Some((k, q)) if k * middle.powf(-q) > lorentz => 1.0 / (q - 1.0),
-            _ => 1.0,
+            Some((k, q)) if k * middle.powf(-q) > lorentz => Some(1.0 / (q - 1.0)),
+            _ => None,
         };
-        let start = if power == 1.0 {
+        let start = if power.is_none() {
             TAIL_START
         } else {
             STEEP_TAIL_START
@@ -541,7 +542,7 @@ fn plan(scale: &LineScale) -> Plan {
         Plan {
             edge,
             inner,
-            outer: if split && power == 1.0 {
+            outer: if split && power.is_none() {
                 scale.reach.max(REACH_MIN * inner)
             } else {
                 start
@@ -558,7 +559,7 @@ fn plan(scale: &LineScale) -> Plan {
             edge,
             inner: cut,
             outer: cut,
-            power: 1.0,
+            power: None,
             split: false,
         }
     }
