@@ -710,9 +710,9 @@ fn fourier_h(y: f64, r: f64, g: f64) -> f64 {
 /// nodes for the whole row, with panels resolving the phase of its largest y. The factor
 /// u(1 − 1.5u³)e^{−u³ − r²u⁴/4} is computed once per node, and cos(i·dy·u²) by rotating
 /// e^{i·dy·u²} step by step, re-anchored to a directly computed sin/cos every
-/// `ROW_ANCHOR` steps so that rounding cannot accumulate (≤ 16 steps of ≈ 2ε each).
+/// `ROW_ANCHOR` steps so that rounding cannot accumulate (≤ 64 steps of ≈ 2ε each).
 fn fourier_h_row(dy: f64, count: usize, r: f64) -> Vec<f64> {
-    const ROW_ANCHOR: usize = 16;
+    const ROW_ANCHOR: usize = 64;
     let expo = |u: f64| u * u * u + 0.25 * r * r * u.powi(4);
     let (mut lo, mut hi) = (0.0, 4.0);
     for _ in 0..80 {
