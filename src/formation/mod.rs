@@ -590,7 +590,8 @@ fn half_width_guess(scale: &quadrature::LineScale) -> f64 {
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
 /// central value: bracketed from the guess `start` by doubling outward or halving inward,
 /// then refined by the Illinois variant of false
-/// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
+/// position (bisection steps where it stalls), with a probe just past the tolerance on the
+/// far side once the steps are below 10⁻³, until the bracket is below 1e-6 relative.
 fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
@@ -626,6 +627,7 @@ fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64)
     }
     // Invariant: g(lo) > 0 >= g(hi). `side` remembers which end moved last (Illinois).
     let mut side = 0i8;
+    let mut previous = f64::INFINITY;
     for _ in 0..200 {
         if hi - lo <= 1e-6 * hi {
             break;
@@ -654,6 +656,24 @@ fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64)
             }
             side = -1;
         }
+        // Converging (the step was below 10⁻³ of x): try the point just past the tolerance
+        // on the far side, which closes the bracket at once if x is within it.
+        if (x - previous).abs() <= 1e-3 * x && hi - lo > 1e-6 * hi {
+            let probe = if side == 1 {
+                x + 0.5e-6 * x
+            } else {
+                x - 0.5e-6 * x
+            };
+            if probe > lo && probe < hi {
+                let gp = g(probe);
+                if gp > 0.0 {
+                    (lo, g_lo) = (probe, gp);
+                } else {
+                    (hi, g_hi) = (probe, gp);
+                }
+            }
+        }
+        previous = x;
     }
     0.5 * (lo + hi)
 }
