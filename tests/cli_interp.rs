@@ -187,16 +187,17 @@ fn sample_reproduces_stored_nodes_and_refuses_bad_input() {
 }
 
 #[test]
-fn a_line_with_zero_values_is_interpolated_in_the_value_and_said_so() {
-    // He II 3-4 in cool gas: no He II, so W = 0 at every node (stored as converged).
+fn a_line_with_non_positive_values_is_interpolated_in_the_value_and_said_so() {
+    // A background cooler than the gas (ratio 0.8) puts the lines in emission against it:
+    // W < 0 there. With the ratio as an axis [0.8, 1.2], every line has negative values.
     let tmp = tempfile::tempdir().unwrap();
-    let spec = tmp.path().join("cool.toml");
+    let spec = tmp.path().join("mixed.toml");
     std::fs::write(
         &spec,
-        "[grid]\ntitle = \"cool\"\noutput = \"x.h5\"\n\n[parameters]\ntemperature = { values = [5000.0, 5500.0, 6000.0] }\ngas_pressure = 1.0e4\nhydrogen_column = 1.0e22\nbackground_ratio = 1.2\n\n[lines]\nlabels = [\"He II 3-4\", \"H-alpha\"]\n",
+        "[grid]\ntitle = \"mixed\"\noutput = \"x.h5\"\n\n[parameters]\ntemperature = { values = [8000.0, 9000.0, 10000.0] }\ngas_pressure = 1.0e4\nhydrogen_column = 1.0e22\nbackground_ratio = { values = [0.8, 1.2] }\n\n[lines]\nlabels = [\"H-alpha\", \"H-beta\"]\n",
     )
     .unwrap();
-    let grid = tmp.path().join("cool.h5");
+    let grid = tmp.path().join("mixed.h5");
     let o = run(&[
         "build",
         spec.to_str().unwrap(),
@@ -206,24 +207,27 @@ fn a_line_with_zero_values_is_interpolated_in_the_value_and_said_so() {
     ]);
     assert!(o.status.success(), "{}", stderr(&o));
     let g = grid.to_str().unwrap();
-    // Default: log10 where every value is positive (H-alpha), the value itself elsewhere,
-    // with a note on stderr and the choice in the JSON.
-    let o = run(&["sample", g, "--at", "temperature=5200", "--json"]);
+    let at = "temperature=8500,background_ratio=1.1";
+    // Default: the value itself for lines with non-positive values, said on stderr and in JSON.
+    let o = run(&["sample", g, "--at", at, "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["value_space"], "auto");
-    assert_eq!(v["linear_value_lines"], serde_json::json!(["He II 3-4"]));
-    let o = run(&["sample", g, "--at", "temperature=5200"]);
+    assert_eq!(
+        v["linear_value_lines"],
+        serde_json::json!(["H-alpha", "H-beta"])
+    );
+    let o = run(&["sample", g, "--at", at]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert!(stderr(&o).contains("He II 3-4"), "{}", stderr(&o));
-    // Forcing log10 refuses the zero values and names the way out.
-    let o = run(&["sample", g, "--at", "temperature=5200", "--log-value"]);
+    assert!(stderr(&o).contains("H-alpha, H-beta"), "{}", stderr(&o));
+    // Forcing log10 refuses the non-positive values and names the way out.
+    let o = run(&["sample", g, "--at", at, "--log-value"]);
     assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
     let e = stderr(&o);
     assert!(
         e.contains("not positive, log10 impossible") && e.contains("--no-log-value"),
         "{e}"
     );
-    let o = run(&["sample", g, "--at", "temperature=5200", "--no-log-value"]);
+    let o = run(&["sample", g, "--at", at, "--no-log-value"]);
     assert!(o.status.success(), "{}", stderr(&o));
 }

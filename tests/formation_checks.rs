@@ -213,3 +213,31 @@ fn bad_slab_parameters_are_refused() {
     let e = line_strength(d, &pure, &o, cat.get("Ca II K").unwrap()).unwrap_err();
     assert!(e.to_string().contains("Ca II"));
 }
+
+#[test]
+fn a_line_far_weaker_than_the_continuum_noise_keeps_its_optically_thin_strength() {
+    // He I 5876 at 5000 K: τ₀ ~ 1e-11 behind a continuum of τ_c ~ 1e-4, so the depth
+    // 1 − F/F_c is ~1e-12 and a difference of fluxes would carry rounding noise ~1e-16 F_c.
+    // Optically thin limit (common practice, no source): 1 − F/F_c = 2π(I_bg − S) E₂(τ_c) τ/F_c
+    // with the Planck factors at line centre, and ∫τ dλ = τ₀ √π Δλ_D/H(a, 0), H(a, 0) = erfcx(a).
+    use linegrid::transfer::special::{erfcx, expn, expn_deficit, planck_nu};
+    let t = 5000.0;
+    let s = &strengths(t, &["He I 5876"])[0];
+    let w = s.equivalent_width.unwrap();
+    assert!(s.tau0 < 1e-9 && s.continuum_tau > 1e-6, "{s:?}");
+    let lambda = linegrid::atoms::lines::Catalogue::embedded()
+        .get("He I 5876")
+        .unwrap()
+        .wavelength_vac;
+    let nu = 2.997_924_58e10 / lambda;
+    let (src, bg) = (planck_nu(nu, t), planck_nu(nu, 1.2 * t));
+    let tc = s.continuum_tau;
+    let fc = 2.0 * std::f64::consts::PI * (bg * expn(3, tc) + src * expn_deficit(3, tc));
+    let depth_per_tau = 2.0 * std::f64::consts::PI * (bg - src) * expn(2, tc) / fc;
+    let thin = depth_per_tau * s.tau0 * std::f64::consts::PI.sqrt() * s.widths.doppler_cm
+        / erfcx(s.damping)
+        * 1e8;
+    let r = (w / thin - 1.0).abs();
+    assert!(r <= 1e-4, "W = {w:e} Å, thin limit {thin:e} Å ({r:e})");
+    assert!(s.evaluations < 200, "{} evaluations", s.evaluations);
+}

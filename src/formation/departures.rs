@@ -169,6 +169,11 @@ pub fn line_strengths_with(
 /// source function S_l = (2hν³/c²)/((b_l/b_u) e^{hν/kT} − 1), mixed with the continuum's
 /// Planck source by opacity weight in the homogeneous slab. A population inversion
 /// (b_u/b_l > e^{hν/kT}) is given no line opacity.
+///
+/// The depth is formed without differencing two fluxes: with S = (τ_l S_l + τ_c B)/τ and
+/// τ = τ_l + τ_c, F_c − F = 2π [(B − S)(½ − E₃(τ)) + (I_bg − B)(E₃(τ_c) − E₃(τ))] in flux and
+/// I_c − I = (B − S)(1 − e^{−τ/μ}) + (I_bg − B) e^{−τ_c/μ}(1 − e^{−τ_l/μ}) in intensity,
+/// which is the LTE expression when b_l = b_u.
 pub fn line_strength_departing(
     data: &AtomicData,
     state: &State,
@@ -176,8 +181,9 @@ pub fn line_strength_departing(
     line: &crate::atoms::lines::Line,
     dep: &LineDepartures,
 ) -> Result<super::LineStrength, super::SlabError> {
+    use super::{Background, View};
     use crate::constants::{C, HC_OVER_K};
-    use crate::transfer::{quadrature, slab as rt, special};
+    use crate::transfer::{slab as rt, special};
     let mut su = super::setup_line(data, state, opts, line)?;
     let t = state.temperature;
     let x0 = HC_OVER_K * su.nu0 / C / t;
@@ -187,87 +193,63 @@ pub fn line_strength_departing(
     su.kappa_scale *= dep.population_ratio * stim / stim_lte;
     su.lower_density *= dep.population_ratio;
     let tau_c = su.kappa_cont * su.thickness;
-    let absorption = matches!(opts.background, super::Background::Planck(_));
-    let emergent = |tau: f64, s: f64, bg: f64| match opts.view {
-        super::View::Flux => rt::emergent_flux(tau, s, bg),
-        super::View::Intensity(mu) => rt::emergent_intensity(tau, mu, s, bg),
+    let absorption = matches!(opts.background, Background::Planck(_));
+    let drop = rt::E3Drop::new(tau_c);
+    let ec_view = match opts.view {
+        View::Intensity(mu) => (-tau_c / mu).exp(),
+        View::Flux => 0.0,
     };
+    let r = 1.0 / ratio_bu_bl; // b_l/b_u
     let profile = |x: f64| -> f64 {
         let lam = su.lambda0 + x;
         let nu = C / lam;
         let b = special::planck_nu(nu, t);
         let bg = match opts.background {
-            super::Background::Planck(tb) => special::planck_nu(nu, tb),
-            super::Background::None => 0.0,
+            Background::Planck(tb) => special::planck_nu(nu, tb),
+            Background::None => 0.0,
         };
         let tau_l = su.tau_line(x);
-        // S_l = B_ν(T) (e^{y} − 1)/((b_l/b_u) e^{y} − 1), y = hν/kT: the Planck function
-        // times a factor that is exactly 1 without departures.
+        // S_l − B = B (1 − r) e^{y}/(r e^{y} − 1) = B (1 − r)/(r − e^{−y}), y = hν/kT.
         let y = HC_OVER_K / (lam * t);
-        let r = 1.0 / ratio_bu_bl;
-        let factor = if y > 1.0 {
-            let e = (-y).exp();
-            (1.0 - e) / (r - e)
+        let denom = r - (-y).exp();
+        let sl_minus_b = if stim > 0.0 && denom > 0.0 {
+            b * (1.0 - r) / denom
         } else {
-            y.exp_m1() / (r * y.exp() - 1.0)
+            -b // inverted: no line source (and no line opacity)
         };
-        let s_line = if factor > 0.0 && factor.is_finite() {
-            b * factor
+        let tau = tau_l + tau_c;
+        let s_minus_b = if tau > 0.0 {
+            tau_l / tau * sl_minus_b
         } else {
             0.0
         };
-        let tau = tau_l + tau_c;
-        let s = if tau > 0.0 {
-            (tau_l * s_line + tau_c * b) / tau
-        } else {
-            b
+        let (loss, fc) = match opts.view {
+            View::Flux => (
+                2.0 * std::f64::consts::PI
+                    * ((bg - b) * drop.at(tau_l) - s_minus_b * special::expn_deficit(3, tau)),
+                2.0 * std::f64::consts::PI * (bg * drop.e3() + b * drop.deficit()),
+            ),
+            View::Intensity(mu) => (
+                (bg - b) * ec_view * -(-tau_l / mu).exp_m1() - s_minus_b * -(-tau / mu).exp_m1(),
+                bg * ec_view + b * (1.0 - ec_view),
+            ),
         };
-        let f = emergent(tau, s, bg);
-        let fc = emergent(tau_c, b, bg);
         if absorption {
-            if fc > 0.0 { 1.0 - f / fc } else { 0.0 }
+            if fc > 0.0 { loss / fc } else { 0.0 }
         } else {
-            (f - fc) * C / (lam * lam)
+            -loss * C / (lam * lam)
         }
     };
-    let tau0 = su.tau_line(0.0);
-    let core = match &su.stark {
-        Some(sp) => su.widths.doppler_cm.max(sp.unit_shift()),
-        None => su.widths.doppler_cm,
-    };
-    let scale = quadrature::LineScale::doppler(core, tau0)
-        .and_then(|s| s.with_wing(su.wing_coefficient()))
-        .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
-        .expect("a positive Doppler width");
-    let integral = quadrature::integrate_line(profile, &scale, 5e-5);
-    let centre = profile(0.0);
-    let fwhm = super::half_width(&profile, centre, su.widths.doppler_cm, 1.0)
-        + super::half_width(&profile, centre, su.widths.doppler_cm, -1.0);
-    let (equivalent_width, emission, central_depth) = if absorption {
-        (Some(integral.value * 1e8), None, centre)
-    } else {
-        let bg0 = 0.0;
-        let fc0 =
-            emergent(tau_c, special::planck_nu(su.nu0, t), bg0) * C / (su.lambda0 * su.lambda0);
-        let contrast = if fc0 > 0.0 {
-            centre / fc0
-        } else {
-            f64::INFINITY
-        };
-        (None, Some(integral.value), contrast)
-    };
-    Ok(super::LineStrength {
-        label: line.label.clone(),
-        wavelength_angstrom: line.wavelength() * 1e8,
-        lower_column: su.lower_density * su.thickness,
-        tau0,
-        continuum_tau: tau_c,
-        equivalent_width,
-        emission,
-        central_depth,
-        fwhm_angstrom: fwhm * 1e8,
-        evaluations: integral.evaluations,
-        widths: su.widths,
-        damping: su.a,
-    })
+    let fc0 = super::emergent(
+        opts.view,
+        tau_c,
+        special::planck_nu(su.nu0, t),
+        match opts.background {
+            Background::Planck(tb) => special::planck_nu(su.nu0, tb),
+            Background::None => 0.0,
+        },
+    );
+    Ok(super::strengths_of(
+        &su, line, profile, absorption, tau_c, fc0,
+    ))
 }

@@ -41,6 +41,11 @@ use crate::opacity::stark::StarkProfile;
 use crate::opacity::voigt::voigt_h;
 use crate::transfer::{quadrature, slab as rt, special};
 
+/// Damping wings are integrated numerically out to |Δλ| = this fraction of λ₀ and continued
+/// analytically beyond as the 1/Δλ² law from there (the Planck factors of the depth are
+/// those at ±0.1 λ₀ in that continuation).
+pub const WING_REACH: f64 = 0.1;
+
 /// How big the slab is.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -390,6 +395,17 @@ impl LineSetup {
         }
     }
 
+    /// Coefficient K of the quasi-static Stark wing τ_line ≈ K |x|^{−5/2} (x in cm) of the
+    /// shifted components, for hydrogen-like lines (0 without a Stark profile).
+    pub fn stark_wing_coefficient(&self) -> f64 {
+        self.stark.as_ref().map_or(0.0, |sp| {
+            let per_phi_nu =
+                self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
+            per_phi_nu * sp.far_wing_coefficient() * self.lambda0 * self.lambda0 / C
+                * self.thickness
+        })
+    }
+
     /// Coefficient A of the Lorentz wing τ_line ≈ A/x² far from the core (x in cm).
     pub fn wing_coefficient(&self) -> f64 {
         // H(a, v) → a/(√π v²), v = Δν/Δν_D, Δν ≈ c x/λ₀².
@@ -406,7 +422,7 @@ impl LineSetup {
 
 /// The emergent quantity (flux or intensity per unit frequency) for optical depth `tau`,
 /// source `s` and background `i_bg`.
-fn emergent(view: View, tau: f64, s: f64, i_bg: f64) -> f64 {
+pub(crate) fn emergent(view: View, tau: f64, s: f64, i_bg: f64) -> f64 {
     match view {
         View::Flux => rt::emergent_flux(tau, s, i_bg),
         View::Intensity(mu) => rt::emergent_intensity(tau, mu, s, i_bg),
@@ -453,6 +469,11 @@ pub fn line_strength(
         }
         _ => None,
     };
+    let drop = rt::E3Drop::new(tau_c);
+    let (ec_view, one_minus_ec_view) = match opts.view {
+        View::Intensity(mu) => ((-tau_c / mu).exp(), -(-tau_c / mu).exp_m1()),
+        View::Flux => (0.0, 0.0),
+    };
     // The integrand as a function of the wavelength offset x (cm).
     let profile = |x: f64| -> f64 {
         if let Some((mu, t_over_tb, ec, one_minus_ec)) = intensity_bg {
@@ -483,15 +504,42 @@ pub fn line_strength(
             Background::None => 0.0,
         };
         let tau = su.tau_line(x);
-        let f = emergent(opts.view, tau + tau_c, s, bg);
-        let fc = emergent(opts.view, tau_c, s, bg);
+        // F_c − F = (I_bg − S) × loss, without forming the difference of two fluxes (which
+        // would leave rounding noise of ~1e-16 F_c in the depth of a weak line):
+        // flux: 2π [S/2 + (I_bg − S) E₃] gives loss = 2π (E₃(τ_c) − E₃(τ_c + τ));
+        // intensity: S + (I_bg − S) e^{−τ_tot/μ} gives loss = e^{−τ_c/μ} (1 − e^{−τ/μ}).
+        let (loss, fc) = match opts.view {
+            View::Flux => (
+                2.0 * std::f64::consts::PI * drop.at(tau),
+                2.0 * std::f64::consts::PI * (bg * drop.e3() + s * drop.deficit()),
+            ),
+            View::Intensity(mu) => (
+                ec_view * -(-tau / mu).exp_m1(),
+                bg * ec_view + s * one_minus_ec_view,
+            ),
+        };
         if absorption {
-            if fc > 0.0 { 1.0 - f / fc } else { 0.0 }
+            if fc > 0.0 { (bg - s) * loss / fc } else { 0.0 }
         } else {
             // F_λ = F_ν c/λ²
-            (f - fc) * C / (lam * lam)
+            (s - bg) * loss * C / (lam * lam)
         }
     };
+    Ok(strengths_of(&su, line, profile, absorption, tau_c, fc0))
+}
+
+/// The strengths of a set-up line from its depth profile 1 − F/F_c (absorption) or its
+/// emission profile F_λ − F_λ,c (without background): the adaptive integral on the line's own
+/// scales, the centre and the FWHM. `fc0` is the continuum (per unit frequency) at line
+/// centre. Shared by LTE and non-LTE lines.
+pub(crate) fn strengths_of(
+    su: &LineSetup,
+    line: &Line,
+    profile: impl Fn(f64) -> f64,
+    absorption: bool,
+    tau_c: f64,
+    fc0: f64,
+) -> LineStrength {
     let tau0 = su.tau_line(0.0);
     let core = match &su.stark {
         // The Stark pattern widens the core: use the larger of the two scales.
@@ -500,12 +548,14 @@ pub fn line_strength(
     };
     let scale = quadrature::LineScale::doppler(core, tau0)
         .and_then(|s| s.with_wing(su.wing_coefficient()))
+        .and_then(|s| s.with_steep_wing(su.stark_wing_coefficient(), 2.5))
+        .and_then(|s| s.with_reach(WING_REACH * su.lambda0))
         .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
         .expect("a positive Doppler width");
-    let integral = quadrature::integrate_line(profile, &scale, 5e-5);
+    let integral = quadrature::integrate_line(&profile, &scale, 5e-5);
     let centre = profile(0.0);
-    let fwhm = half_width(&profile, centre, su.widths.doppler_cm, 1.0)
-        + half_width(&profile, centre, su.widths.doppler_cm, -1.0);
+    let guess = half_width_guess(&scale);
+    let fwhm = half_width(&profile, centre, guess, 1.0) + half_width(&profile, centre, guess, -1.0);
     let (equivalent_width, emission, central_depth) = if absorption {
         (Some(integral.value * 1e8), None, centre)
     } else {
@@ -517,7 +567,7 @@ pub fn line_strength(
         };
         (None, Some(integral.value), contrast)
     };
-    Ok(LineStrength {
+    LineStrength {
         label: line.label.clone(),
         wavelength_angstrom: line.wavelength() * 1e8,
         lower_column: su.lower_density * su.thickness,
@@ -530,7 +580,7 @@ pub fn line_strength(
         evaluations: integral.evaluations,
         widths: su.widths,
         damping: su.a,
-    })
+    }
 }
 
 /// The normalised emergent spectrum across one line: for each wavelength offset (cm, from
@@ -573,30 +623,67 @@ pub fn line_profile(
         .collect())
 }
 
+/// A first guess of the half width at half depth from the line's scales: where the line's
+/// optical depth has fallen to τ_h, the depth at which a screen 1 − e^{−τ} is half its
+/// central value, (1 − e^{−τ_h}) = (1 − e^{−τ₀})/2, taking the farthest of the Doppler core
+/// (s √ln(τ₀/τ_h)), the damping wing (√(A/τ_h)) and the steep wing ((K/τ_h)^{1/q}).
+pub(crate) fn half_width_guess(scale: &quadrature::LineScale) -> f64 {
+    let s = scale.core();
+    let tau0 = scale.peak_optical_depth();
+    let tau_h = -(0.5 * (1.0 + (-tau0).exp())).ln();
+    let mut x = s * (tau0 / tau_h).max(2.0).ln().sqrt();
+    if tau_h > 0.0 {
+        if let Some(a) = scale.wing() {
+            x = x.max((a / tau_h).sqrt());
+        }
+        if let Some((k, q)) = scale.steep_wing() {
+            x = x.max((k / tau_h).powf(1.0 / q));
+        }
+    }
+    if x.is_finite() && x > 0.0 { x } else { s }
+}
+
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
-/// central value: bracketed by doubling, then refined by the Illinois variant of false
-/// position (bisection steps where it stalls) until the bracket is below 1e-6 relative.
-pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, sign: f64) -> f64 {
+/// central value: bracketed from the guess `start` by doubling outward or halving inward,
+/// then refined by the Illinois variant of false
+/// position (bisection steps where it stalls), with a probe just past the tolerance on the
+/// far side once the steps are below 10⁻³, until the bracket is below 1e-6 relative.
+pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
     }
     let half = 0.5 * centre;
     // g > 0 inside the half-maximum, g < 0 outside.
     let g = |x: f64| (profile(sign * x) - half) * centre.signum();
-    let (mut lo, mut hi) = (0.0, core.max(1e-16));
+    let (mut lo, mut hi) = (0.0, start.max(1e-16));
     let (mut g_lo, mut g_hi) = (centre.abs() - half.abs(), g(hi));
     let mut guard = 0;
-    while g_hi > 0.0 {
-        (lo, g_lo) = (hi, g_hi);
-        hi *= 2.0;
-        g_hi = g(hi);
-        guard += 1;
-        if guard > 200 {
-            return f64::INFINITY;
+    if g_hi > 0.0 {
+        while g_hi > 0.0 {
+            (lo, g_lo) = (hi, g_hi);
+            hi *= 2.0;
+            g_hi = g(hi);
+            guard += 1;
+            if guard > 200 {
+                return f64::INFINITY;
+            }
+        }
+    } else {
+        // the guess is outside: halve until inside (or keep lo = 0)
+        let mut x = 0.5 * hi;
+        for _ in 0..60 {
+            let gx = g(x);
+            if gx > 0.0 {
+                (lo, g_lo) = (x, gx);
+                break;
+            }
+            (hi, g_hi) = (x, gx);
+            x *= 0.5;
         }
     }
     // Invariant: g(lo) > 0 >= g(hi). `side` remembers which end moved last (Illinois).
     let mut side = 0i8;
+    let mut previous = f64::INFINITY;
     for _ in 0..200 {
         if hi - lo <= 1e-6 * hi {
             break;
@@ -625,6 +712,24 @@ pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, core: f64, 
             }
             side = -1;
         }
+        // Converging (the step was below 10⁻³ of x): try the point just past the tolerance
+        // on the far side, which closes the bracket at once if x is within it.
+        if (x - previous).abs() <= 1e-3 * x && hi - lo > 1e-6 * hi {
+            let probe = if side == 1 {
+                x + 0.5e-6 * x
+            } else {
+                x - 0.5e-6 * x
+            };
+            if probe > lo && probe < hi {
+                let gp = g(probe);
+                if gp > 0.0 {
+                    (lo, g_lo) = (probe, gp);
+                } else {
+                    (hi, g_hi) = (probe, gp);
+                }
+            }
+        }
+        previous = x;
     }
     0.5 * (lo + hi)
 }
