@@ -176,3 +176,95 @@ damping = { radiative = 1e8, stark_coefficient = 1e-5 }
     let e = Plan::new(spec).unwrap_err();
     assert!(e.message.contains("leaves out"), "{}", e.message);
 }
+
+#[test]
+fn damping_dominated_lines_match_a_brute_force_sum_of_the_model_depth() {
+    // Hα and Hβ with the fixed damping law where the damping wing carries W far out (the part
+    // beyond the reach |Δλ| ≤ 0.1 λ₀ is several % of W), against the model's own depth summed
+    // by the composite Simpson rule on x = s sinh u out to 1000 λ₀ (plus D(x) x beyond): the
+    // folded integral with its breaks at the two ends of the reach and its analytic tail must
+    // agree to 10⁻⁴. The depth of the intensity view against a background, τ_c = 0:
+    // (1 − B_ν(T)/B_ν(T_bg))(1 − e^{−τ}) per unit wavelength, times dλ/dx.
+    let data = AtomicData::embedded();
+    let cat = Catalogue::embedded();
+    for &(t, nh) in &[(13_491.5, 4.64e16), (15_389.8, 1e17), (9_000.0, 1e17)] {
+        let state = pure_h(t, nh, LevelCutoff::MaxShell(30));
+        let opts = SlabOptions {
+            geometry: Geometry::Thickness(1e8),
+            background: Background::Planck(1.2 * t),
+            microturbulence: 2e5,
+            view: View::Intensity(1.0),
+            continuum: false,
+            damping: Some(DampingOverride {
+                radiative: 1e8,
+                stark_coefficient: 1e-5,
+            }),
+        };
+        for label in ["H-alpha", "H-beta"] {
+            let line = cat.get(label).unwrap();
+            let su = setup_line(data, &state, &opts, line).unwrap();
+            let got = line_strength(data, &state, &opts, line).unwrap();
+            let depth = |x: f64| {
+                let y = HC_OVER_K / (su.wavelength_at(x) * t);
+                let tau = su.profile_tau(x) * su.stim_ratio(y);
+                su.jacobian(x) * (1.0 - (y / 1.2).exp_m1() / y.exp_m1()) * -(-tau).exp_m1()
+            };
+            let s = su.widths.doppler_cm;
+            let n = 2_000_000usize;
+            let u_max = (1000.0 * su.lambda0 / s).asinh();
+            let h = u_max / n as f64;
+            let mut sum = 0.0;
+            for i in 0..=n {
+                let u = h * i as f64;
+                let w = if i == 0 || i == n {
+                    1.0
+                } else if i % 2 == 1 {
+                    4.0
+                } else {
+                    2.0
+                };
+                let x = s * u.sinh();
+                sum += w * (depth(x) + depth(-x)) * s * u.cosh();
+            }
+            let x_end = s * u_max.sinh();
+            let brute = (sum * h / 3.0 + (depth(x_end) + depth(-x_end)) * x_end) * 1e8;
+            let w = got.equivalent_width.unwrap();
+            let beyond = 1.0 - {
+                // the share of W beyond the reach, for the record: the window part alone
+                let r = su.reach_ends();
+                let (ur, ub) = ((r[0] / s).asinh(), (r[1] / s).asinh());
+                let part = |end: f64, sign: f64| {
+                    let m = 200_000usize;
+                    let hh = end / m as f64;
+                    (0..=m)
+                        .map(|i| {
+                            let u = hh * i as f64;
+                            let wt = if i == 0 || i == m {
+                                1.0
+                            } else if i % 2 == 1 {
+                                4.0
+                            } else {
+                                2.0
+                            };
+                            wt * depth(sign * s * u.sinh()) * s * u.cosh()
+                        })
+                        .sum::<f64>()
+                        * hh
+                        / 3.0
+                };
+                (part(ur, 1.0) + part(ub, -1.0)) * 1e8 / brute
+            };
+            let err = (w / brute - 1.0).abs();
+            assert!(
+                err <= 1e-4,
+                "{label} T={t} nH={nh:e}: W {w} Å vs {brute} Å ({err:e}; {:.1} % beyond the reach)",
+                100.0 * beyond
+            );
+            eprintln!(
+                "{label} T={t} nH={nh:e}: {err:.1e}, {:.1} % beyond the reach",
+                100.0 * beyond
+            );
+            assert!(got.evaluations <= 120, "{}", got.evaluations);
+        }
+    }
+}

@@ -192,6 +192,8 @@ pub fn line_strength_departing(
     let stim = (1.0 - ratio_bu_bl * (-x0).exp()).max(0.0);
     su.kappa_scale *= dep.population_ratio * stim / stim_lte;
     su.lower_density *= dep.population_ratio;
+    su.stim0 = stim;
+    su.departure_ratio = Some(ratio_bu_bl);
     let tau_c = su.kappa_cont * su.thickness;
     let absorption = matches!(opts.background, Background::Planck(_));
     let drop = rt::E3Drop::new(tau_c);
@@ -200,17 +202,17 @@ pub fn line_strength_departing(
         View::Flux => 0.0,
     };
     let r = 1.0 / ratio_bu_bl; // b_l/b_u
-    let profile = |x: f64| -> f64 {
-        let lam = su.lambda0 + x;
+    let profile = |x: f64, tau_even: f64| -> f64 {
+        let lam = su.wavelength_at(x);
         let nu = C / lam;
         let b = special::planck_nu(nu, t);
         let bg = match opts.background {
             Background::Planck(tb) => special::planck_nu(nu, tb),
             Background::None => 0.0,
         };
-        let tau_l = su.tau_line(x);
         // S_l − B = B (1 − r) e^{y}/(r e^{y} − 1) = B (1 − r)/(r − e^{−y}), y = hν/kT.
         let y = HC_OVER_K / (lam * t);
+        let tau_l = tau_even * su.stim_ratio(y);
         let denom = r - (-y).exp();
         let sl_minus_b = if stim > 0.0 && denom > 0.0 {
             b * (1.0 - r) / denom
@@ -250,6 +252,12 @@ pub fn line_strength_departing(
         },
     );
     Ok(super::strengths_of(
-        &su, line, profile, absorption, tau_c, fc0,
+        &su,
+        line,
+        profile,
+        |x, tau| (profile(x, tau), profile(-x, tau)),
+        absorption,
+        tau_c,
+        fc0,
     ))
 }

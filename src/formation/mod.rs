@@ -7,9 +7,21 @@
 //! and continuum is B_ν(T); continuum scattering is treated as absorption (a lite choice).
 //! The continuum opacity is evaluated at line centre and held constant across the line.
 //!
-//! Profiles are evaluated at v = Δλ/Δλ_D (linear in wavelength, symmetric about the line);
-//! the frequency asymmetry this drops matters only where |Δλ| approaches λ₀, where a
-//! Lorentz wing has no meaning anyway.
+//! Profiles are defined in frequency and evaluated at the offset x = λ₀ (1 − ν/ν₀) (cm; to
+//! first order x = λ − λ₀), so that v = Δν/Δν_D = −x/Δλ_D exactly and every profile is even
+//! in x: one profile evaluation serves both sides of the line (the equivalent-width integral
+//! is folded, [`quadrature::integrate_folded`]). The stimulated-emission factor, the Planck
+//! functions of source and background and dλ/dx = (λ/λ₀)² are those of the frequency at x,
+//! so both sides differ where they should. Beyond |x| = R = `WING_REACH` λ₀ the depth is
+//! continued from its values at λ₀ ± R λ₀ (R = `WING_REACH`) as the wing's own law in
+//! Δλ = λ − λ₀ (`LineSetup::jacobian`): a damping wing that far out has no physical meaning
+//! (a Lorentzian in frequency does not even vanish as λ → ∞), so this fixes a definite
+//! continuation, and one that hardly depends on R because the ends are symmetric in Δλ
+//! (the changes of the Planck factors, the stimulated emission and the frequency-to-
+//! wavelength conversion largely cancel between the two sides): on the pure-hydrogen Balmer
+//! benchmark grid (`scripts/bench-slab`, where the part beyond R is up to 15 % of Hα's W),
+//! R = 0.2 instead of 0.1 changes W by at most 6.5×10⁻⁵ (median 3×10⁻⁷), inside the two
+//! integrals' own tolerance. The blue side never reaches λ ≤ 0.
 //!
 //! Line strengths (wavelength offsets x = λ − λ₀ in cm internally, reported in Å):
 //! - with a background: the equivalent width W_λ = ∫ (1 − F/F_c) dλ (negative for a line in
@@ -41,9 +53,9 @@ use crate::opacity::stark::StarkProfile;
 use crate::opacity::voigt::voigt_h;
 use crate::transfer::{quadrature, slab as rt, special};
 
-/// Damping wings are integrated numerically out to |Δλ| = this fraction of λ₀ and continued
-/// analytically beyond as the 1/Δλ² law from there (the Planck factors of the depth are
-/// those at ±0.1 λ₀ in that continuation).
+/// Damping wings are integrated numerically out to |x| = this fraction of λ₀ and continued
+/// analytically beyond as the 1/x² law from there; the frequency-dependent factors of the
+/// depth are held at their values at ±0.1 λ₀ beyond it.
 pub const WING_REACH: f64 = 0.1;
 
 /// How big the slab is.
@@ -127,8 +139,11 @@ pub struct LineStrength {
     pub central_depth: f64,
     /// Full width at half maximum of the depth (or emission) profile, Å.
     pub fwhm_angstrom: f64,
-    /// Profile evaluations used by the integral.
+    /// Profile evaluations used by the integral (one serves both sides of the line).
     pub evaluations: usize,
+    /// Whether the integral reached its tolerance within the evaluation budget
+    /// ([`quadrature::MAX_EVALUATIONS`]); grids flag the point when it did not.
+    pub converged: bool,
     /// The widths used.
     pub widths: Widths,
     /// Voigt damping parameter.
@@ -272,6 +287,12 @@ pub struct LineSetup {
     pub thickness: f64,
     /// Quasi-static Stark profile, for hydrogen-like lines.
     pub stark: Option<StarkProfile>,
+    /// Stimulated-emission factor 1 − (b_u/b_l) e^{−hν₀/kT} at line centre (included in
+    /// `kappa_scale`).
+    pub stim0: f64,
+    /// b_u/b_l, the ratio of the departure coefficients of the upper and lower level, where
+    /// the populations depart from LTE.
+    pub departure_ratio: Option<f64>,
 }
 
 /// Compute the wavelength-independent quantities of a line in a slab.
@@ -358,6 +379,8 @@ pub fn setup_line(
     };
     Ok(LineSetup {
         stark,
+        stim0: stim,
+        departure_ratio: None,
         lambda0: line.wavelength_vac,
         nu0,
         widths,
@@ -371,10 +394,85 @@ pub fn setup_line(
 }
 
 impl LineSetup {
-    /// Line optical depth (normal) at wavelength offset x (cm).
+    /// The offset x clamped to the reach |λ − λ₀| ≤ R = `WING_REACH` λ₀, i.e. to
+    /// −λ₀R/(1 − R) ≤ x ≤ λ₀R/(1 + R), beyond which the frequency-dependent factors (Planck
+    /// functions, stimulated emission) are held at their value there.
+    fn clamped(&self, x: f64) -> f64 {
+        let r = WING_REACH;
+        if x > 0.0 {
+            x.min(self.lambda0 * r / (1.0 + r))
+        } else {
+            x.max(-self.lambda0 * r / (1.0 - r))
+        }
+    }
+
+    /// |x| of the red and the blue end of the reach, where the depth's continuation starts
+    /// on either side.
+    pub fn reach_ends(&self) -> [f64; 2] {
+        [self.lambda0 * WING_REACH / (1.0 + WING_REACH), self.reach()]
+    }
+
+    /// The larger |x| of the two ends of the reach (the blue one), past which the depth is
+    /// the continuation on both sides.
+    pub fn reach(&self) -> f64 {
+        self.lambda0 * WING_REACH / (1.0 - WING_REACH)
+    }
+
+    /// Frequency at offset x: ν = ν₀ (1 − x/λ₀), held constant beyond the reach.
+    pub fn frequency_at(&self, x: f64) -> f64 {
+        self.nu0 * (1.0 - self.clamped(x) / self.lambda0)
+    }
+
+    /// Vacuum wavelength at offset x: λ = λ₀/(1 − x/λ₀), held constant beyond the reach.
+    pub fn wavelength_at(&self, x: f64) -> f64 {
+        self.lambda0 / (1.0 - self.clamped(x) / self.lambda0)
+    }
+
+    /// dλ/dx = (λ/λ₀)² within the reach; beyond it the secant (λ_R − λ₀)/x_R = λ_R/λ₀ of
+    /// that side's end x_R (λ_R = λ₀(1 ± R)), so that there the wing continues as the same
+    /// law in Δλ = λ − λ₀ that it follows in x, from Δλ_R = ±Rλ₀ on either side:
+    /// D(Δλ) = D_R (1 − e^{−τ_R (Δλ_R/Δλ)²}) for a damping wing (D_R, τ_R the values there).
+    pub fn jacobian(&self, x: f64) -> f64 {
+        let xc = self.clamped(x);
+        let r = 1.0 / (1.0 - xc / self.lambda0);
+        // strictly inside: at the end itself the continuation applies (an analytic tail that
+        // starts there takes its amplitude from that point)
+        let end = self.reach_ends()[if x > 0.0 { 0 } else { 1 }];
+        if x.abs() < end { r * r } else { r }
+    }
+
+    /// The offset x of the vacuum wavelength λ: x = λ₀ (1 − λ₀/λ) (the inverse of
+    /// `wavelength_at` within the reach).
+    pub fn offset_of(&self, lambda: f64) -> f64 {
+        self.lambda0 * (1.0 - self.lambda0 / lambda)
+    }
+
+    /// The stimulated-emission factor at y = hν/kT relative to its line-centre value
+    /// (0 where the levels are inverted).
+    pub fn stim_ratio(&self, y: f64) -> f64 {
+        let s = match self.departure_ratio {
+            None => -(-y).exp_m1(),
+            Some(r) => 1.0 - r * (-y).exp(),
+        };
+        if self.stim0 > 0.0 && s > 0.0 {
+            s / self.stim0
+        } else {
+            0.0
+        }
+    }
+
+    /// Line optical depth (normal) at offset x (cm), with the stimulated emission of the
+    /// frequency there.
     pub fn tau_line(&self, x: f64) -> f64 {
-        // Offsets are linear in wavelength, v = Δλ/Δλ_D, so the profile is symmetric in Δλ and
-        // its damping wings fall exactly as 1/Δλ² (the analytic tail then holds to infinity).
+        let y = HC_OVER_K * self.frequency_at(x) / (C * self.temperature);
+        self.profile_tau(x) * self.stim_ratio(y)
+    }
+
+    /// Line optical depth (normal) at offset x (cm) with the stimulated-emission factor of
+    /// line centre: even in x.
+    pub fn profile_tau(&self, x: f64) -> f64 {
+        // v = Δν/Δν_D = −x/Δλ_D exactly, so the profile is even in x and its damping wings
+        // fall exactly as 1/x² (the analytic tail then holds to infinity).
         let v = x / self.widths.doppler_cm;
         let h = voigt_h(self.a, v);
         match &self.stark {
@@ -474,36 +572,35 @@ pub fn line_strength(
         View::Intensity(mu) => ((-tau_c / mu).exp(), -(-tau_c / mu).exp_m1()),
         View::Flux => (0.0, 0.0),
     };
-    // The integrand as a function of the wavelength offset x (cm).
-    let profile = |x: f64| -> f64 {
+    // The depth (per unit wavelength) at offset x (cm), given the even profile's optical
+    // depth there (`LineSetup::profile_tau`).
+    let profile = |x: f64, tau_even: f64| -> f64 {
+        let lam = su.wavelength_at(x);
         if let Some((mu, t_over_tb, ec, one_minus_ec)) = intensity_bg {
             // I = I_bg e^{-x} + S (1 - e^{-x}), x = (τ + τ_c)/μ, I_c the same with τ = 0, so
             // 1 - I/I_c = (1 - r) e^{-x_c} (1 - e^{-τ/μ}) / (e^{-x_c} + r (1 - e^{-x_c}))
             // with r = S/I_bg = B_ν(T)/B_ν(T_bg) = (e^{y_bg} - 1)/(e^{y} - 1), y = hν/kT
             // (beyond y ~ 700 the general form below handles the under- and overflows).
-            let y = HC_OVER_K / ((su.lambda0 + x) * t);
+            let y = HC_OVER_K / (lam * t);
             let y_bg = y * t_over_tb;
             if y.max(y_bg) < 700.0 {
                 // e^z − 1 by exp where that loses at most a bit (z ≥ 0.7), else by expm1.
                 let em1 = |z: f64| if z >= 0.7 { z.exp() - 1.0 } else { z.exp_m1() };
-                let r = em1(y_bg) / em1(y);
-                let tm = su.tau_line(x) / mu;
-                let absorbed = if tm >= 0.7 {
-                    1.0 - (-tm).exp()
-                } else {
-                    -(-tm).exp_m1()
-                };
-                return (1.0 - r) * ec * absorbed / (ec + r * one_minus_ec);
+                let em1_y = em1(y);
+                let r = em1(y_bg) / em1_y;
+                // 1 − e^{−y} = (e^y − 1)/e^y, LTE (departures use their own closure)
+                let stim = em1_y / (em1_y + 1.0) / su.stim0;
+                let tm = tau_even * stim / mu;
+                return (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec);
             }
         }
-        let lam = su.lambda0 + x;
         let nu = C / lam;
         let s = special::planck_nu(nu, t);
         let bg = match opts.background {
             Background::Planck(tb) => special::planck_nu(nu, tb),
             Background::None => 0.0,
         };
-        let tau = su.tau_line(x);
+        let tau = tau_even * su.stim_ratio(HC_OVER_K / (lam * t));
         // F_c − F = (I_bg − S) × loss, without forming the difference of two fluxes (which
         // would leave rounding noise of ~1e-16 F_c in the depth of a weak line):
         // flux: 2π [S/2 + (I_bg − S) E₃] gives loss = 2π (E₃(τ_c) − E₃(τ_c + τ));
@@ -525,17 +622,80 @@ pub fn line_strength(
             (s - bg) * loss * C / (lam * lam)
         }
     };
-    Ok(strengths_of(&su, line, profile, absorption, tau_c, fc0))
+    // Both sides at once for intensity against a background: y = hν/kT is y₀ ∓ δ on the red
+    // and blue side (δ = y₀ x/λ₀), so e^{y} and e^{y_bg} of both sides come from two
+    // exponentials; valid where every y of the reach stays in [0.7, 700] (else per side).
+    let pair_fast = intensity_bg.and_then(|(mu, t_over_tb, ec, one_minus_ec)| {
+        let y0 = HC_OVER_K * su.nu0 / (C * t);
+        let y_min = HC_OVER_K / (su.wavelength_at(su.lambda0) * t) * t_over_tb.min(1.0);
+        let y_max = HC_OVER_K / (su.wavelength_at(-su.lambda0) * t) * t_over_tb.max(1.0);
+        (y_min >= 0.7 && y_max < 700.0).then_some((mu, t_over_tb, ec, one_minus_ec, y0))
+    });
+    match pair_fast {
+        Some((mu, t_over_tb, ec, one_minus_ec, y0)) => {
+            let (e0, e0_bg) = (y0.exp(), (y0 * t_over_tb).exp());
+            let inv_stim0 = 1.0 / su.stim0;
+            let pair = |x: f64, tau_even: f64| -> (f64, f64) {
+                let side = |ey: f64, ey_bg: f64| {
+                    let (em1, em1_bg) = (ey - 1.0, ey_bg - 1.0);
+                    let r = em1_bg / em1;
+                    let tm = tau_even * em1 / ey * inv_stim0 / mu;
+                    (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec)
+                };
+                let (red, blue) = (su.clamped(x), su.clamped(-x));
+                let delta = y0 * red / su.lambda0;
+                let (ed, ed_bg) = (delta.exp(), (delta * t_over_tb).exp());
+                if x <= su.reach_ends()[0] {
+                    // both sides within the reach: blue = −red
+                    (side(e0 / ed, e0_bg / ed_bg), side(e0 * ed, e0_bg * ed_bg))
+                } else {
+                    // past the red end of the reach: the blue side on its own
+                    let delta_b = y0 * blue / su.lambda0;
+                    let (eb, eb_bg) = (delta_b.exp(), (delta_b * t_over_tb).exp());
+                    (side(e0 / ed, e0_bg / ed_bg), side(e0 / eb, e0_bg / eb_bg))
+                }
+            };
+            Ok(strengths_of(
+                &su, line, profile, pair, absorption, tau_c, fc0,
+            ))
+        }
+        None => Ok(strengths_of(
+            &su,
+            line,
+            profile,
+            |x, tau| (profile(x, tau), profile(-x, tau)),
+            absorption,
+            tau_c,
+            fc0,
+        )),
+    }
+}
+
+/// 1 − e^{−τ} without cancellation and, for small τ, without an exponential.
+fn absorbed(tau: f64) -> f64 {
+    if tau < 1e-3 {
+        // the series to τ⁴: the next term, τ⁵/120, is below 1e-14 τ
+        tau * (1.0 - 0.5 * tau * (1.0 - tau / 3.0 * (1.0 - 0.25 * tau)))
+    } else if tau < 0.7 {
+        -(-tau).exp_m1()
+    } else {
+        1.0 - (-tau).exp()
+    }
 }
 
 /// The strengths of a set-up line from its depth profile 1 − F/F_c (absorption) or its
-/// emission profile F_λ − F_λ,c (without background): the adaptive integral on the line's own
-/// scales, the centre and the FWHM. `fc0` is the continuum (per unit frequency) at line
-/// centre. Shared by LTE and non-LTE lines.
+/// emission profile F_λ − F_λ,c (without background), given as a function of the offset x
+/// and the even profile's optical depth τ(x) = `LineSetup::profile_tau`(x), and as `pair`
+/// (x ≥ 0, τ(x)) ↦ (profile(x, τ), profile(−x, τ)), which a caller may compute faster than
+/// two calls: the adaptive
+/// integral on the line's own scales (folded, one profile evaluation for both sides, with
+/// dλ = (λ/λ₀)² dx), the centre and the FWHM. `fc0` is the continuum (per unit frequency)
+/// at line centre. Shared by LTE and non-LTE lines.
 pub(crate) fn strengths_of(
     su: &LineSetup,
     line: &Line,
-    profile: impl Fn(f64) -> f64,
+    profile: impl Fn(f64, f64) -> f64,
+    pair: impl Fn(f64, f64) -> (f64, f64),
     absorption: bool,
     tau_c: f64,
     fc0: f64,
@@ -549,13 +709,31 @@ pub(crate) fn strengths_of(
     let scale = quadrature::LineScale::doppler(core, tau0)
         .and_then(|s| s.with_wing(su.wing_coefficient()))
         .and_then(|s| s.with_steep_wing(su.stark_wing_coefficient(), 2.5))
-        .and_then(|s| s.with_reach(WING_REACH * su.lambda0))
+        .and_then(|s| s.with_reach(su.reach()))
+        .map(|s| s.with_breaks(su.reach_ends()))
         .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
         .expect("a positive Doppler width");
-    let integral = quadrature::integrate_line(&profile, &scale, 5e-5);
-    let centre = profile(0.0);
+    // The depths the integral sees, both sides, kept to bracket the half widths.
+    let mut samples: Vec<(f64, f64, f64)> = Vec::with_capacity(128);
+    let folded = |x: f64| {
+        let (red, blue) = pair(x, su.profile_tau(x));
+        samples.push((x, red, blue));
+        su.jacobian(x) * red + su.jacobian(-x) * blue
+    };
+    let integral = quadrature::integrate_folded(folded, &scale, 5e-5);
+    let depth = |x: f64| profile(x, su.profile_tau(x));
+    let centre = depth(0.0);
     let guess = half_width_guess(&scale);
-    let fwhm = half_width(&profile, centre, guess, 1.0) + half_width(&profile, centre, guess, -1.0);
+    // half widths found in x, reported in wavelength
+    let red_side: Vec<(f64, f64)> = samples.iter().map(|&(x, r, _)| (x, r)).collect();
+    let blue_side: Vec<(f64, f64)> = samples.iter().map(|&(x, _, b)| (x, b)).collect();
+    let red = half_width(&depth, centre, guess, 1.0, &red_side);
+    let blue = half_width(&depth, centre, guess, -1.0, &blue_side);
+    let fwhm = if red.is_finite() && blue.is_finite() {
+        su.wavelength_at(red) - su.wavelength_at(-blue)
+    } else {
+        f64::INFINITY
+    };
     let (equivalent_width, emission, central_depth) = if absorption {
         (Some(integral.value * 1e8), None, centre)
     } else {
@@ -578,6 +756,7 @@ pub(crate) fn strengths_of(
         central_depth,
         fwhm_angstrom: fwhm * 1e8,
         evaluations: integral.evaluations,
+        converged: integral.converged,
         widths: su.widths,
         damping: su.a,
     }
@@ -608,15 +787,17 @@ pub fn line_profile(
     let tau_c = su.kappa_cont * su.thickness;
     Ok(offsets
         .iter()
-        .map(|&x| {
-            let lam = su.lambda0 + x;
+        .map(|&dl| {
+            let lam = su.lambda0 + dl;
             let nu = C / lam;
             let s = special::planck_nu(nu, t);
             let bg = match opts.background {
                 Background::Planck(tb) => special::planck_nu(nu, tb),
                 Background::None => 0.0,
             };
-            let f = emergent(opts.view, su.tau_line(x) + tau_c, s, bg);
+            let x = su.offset_of(lam);
+            let tau = su.profile_tau(x) * su.stim_ratio(HC_OVER_K * nu / (C * t));
+            let f = emergent(opts.view, tau + tau_c, s, bg);
             let fc = emergent(opts.view, tau_c, s, bg);
             (lam, if fc > 0.0 { f / fc } else { f64::NAN })
         })
@@ -644,19 +825,46 @@ pub(crate) fn half_width_guess(scale: &quadrature::LineScale) -> f64 {
 }
 
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
-/// central value: bracketed from the guess `start` by doubling outward or halving inward,
-/// then refined by the Illinois variant of false
-/// position (bisection steps where it stalls), with a probe just past the tolerance on the
-/// far side once the steps are below 10⁻³, until the bracket is below 1e-6 relative.
-pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64, sign: f64) -> f64 {
+/// central value: bracketed from `known` (distances ≥ 0 and the profile there on this side,
+/// e.g. the points an integral has already evaluated) between the farthest point inside the
+/// half maximum and the next one out; failing that, from the guess `start` by doubling
+/// outward or halving inward; then refined by the Illinois variant of false position
+/// (bisection steps where it stalls), with a probe just past the tolerance on the far side
+/// once the steps are below 10⁻³, until the bracket is below 1e-6 relative.
+pub(crate) fn half_width(
+    profile: &impl Fn(f64) -> f64,
+    centre: f64,
+    start: f64,
+    sign: f64,
+    known: &[(f64, f64)],
+) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
     }
     let half = 0.5 * centre;
     // g > 0 inside the half-maximum, g < 0 outside.
     let g = |x: f64| (profile(sign * x) - half) * centre.signum();
-    let (mut lo, mut hi) = (0.0, start.max(1e-16));
-    let (mut g_lo, mut g_hi) = (centre.abs() - half.abs(), g(hi));
+    let inside = |d: f64| (d - half) * centre.signum();
+    let (far_in, g_far_in) = known
+        .iter()
+        .filter(|&&(x, d)| x > 0.0 && inside(d) > 0.0)
+        .fold((0.0, centre.abs() - half.abs()), |acc, &(x, d)| {
+            if x > acc.0 { (x, inside(d)) } else { acc }
+        });
+    let next_out = known.iter().filter(|&&(x, _)| x > far_in).fold(
+        None,
+        |acc: Option<(f64, f64)>, &(x, d)| match acc {
+            Some((xa, _)) if xa <= x => acc,
+            _ => Some((x, inside(d))),
+        },
+    );
+    let (mut lo, mut hi, mut g_lo, mut g_hi);
+    if let Some((x_out, g_out)) = next_out {
+        (lo, g_lo, hi, g_hi) = (far_in, g_far_in, x_out, g_out);
+        return refine_crossing(&g, lo, g_lo, hi, g_hi);
+    }
+    (lo, hi) = (0.0, start.max(1e-16));
+    (g_lo, g_hi) = (centre.abs() - half.abs(), g(hi));
     let mut guard = 0;
     if g_hi > 0.0 {
         while g_hi > 0.0 {
@@ -681,6 +889,17 @@ pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64,
             x *= 0.5;
         }
     }
+    refine_crossing(&g, lo, g_lo, hi, g_hi)
+}
+
+/// The root of g between lo and hi, g(lo) > 0 ≥ g(hi) (see `half_width`).
+fn refine_crossing(
+    g: &impl Fn(f64) -> f64,
+    mut lo: f64,
+    mut g_lo: f64,
+    mut hi: f64,
+    mut g_hi: f64,
+) -> f64 {
     // Invariant: g(lo) > 0 >= g(hi). `side` remembers which end moved last (Illinois).
     let mut side = 0i8;
     let mut previous = f64::INFINITY;
@@ -693,11 +912,15 @@ pub(crate) fn half_width(profile: &impl Fn(f64) -> f64, centre: f64, start: f64,
         } else {
             0.5 * (lo + hi)
         };
-        // Keep strictly inside, at least a thousandth of the bracket from either end.
+        // Keep strictly inside, at least a thousandth of the bracket from either end: a
+        // step that lands closer to an end (the root is there) goes to that distance, which
+        // shrinks the bracket a thousandfold when it falls on the far side of the root.
         let margin = 1e-3 * (hi - lo);
-        if !(x > lo + margin && x < hi - margin) {
-            x = 0.5 * (lo + hi);
-        }
+        x = if x.is_nan() {
+            0.5 * (lo + hi)
+        } else {
+            x.clamp(lo + margin, hi - margin)
+        };
         let gx = g(x);
         if gx > 0.0 {
             (lo, g_lo) = (x, gx);

@@ -26,6 +26,6 @@ pub mod slab;
 pub mod special;
 
 pub use growth::{AbsorptionLine, GrowthAsymptotes, doppler_growth};
-pub use quadrature::{InvalidLineScale, LineIntegral, LineScale, integrate_line};
+pub use quadrature::{InvalidLineScale, LineIntegral, LineScale, integrate_folded, integrate_line};
 pub use slab::{AngleQuadrature, Slab, emergent_flux, emergent_intensity};
 pub use special::{e1, e2, e3, erf, erfc, erfcx, expn, planck_lambda, planck_nu};
