@@ -307,6 +307,13 @@ pub fn slab(a: SlabArgs) -> Result<(), Failure> {
         "mean profile evaluations per line: {:.1}",
         mean_evals(&strengths)
     );
+    for s in strengths.iter().filter(|s| !s.converged) {
+        outln!(
+            o,
+            "warning: the integral of '{}' stopped at its evaluation budget short of its tolerance",
+            s.label
+        );
+    }
     if let (Some(c), Some(sol)) = (&cr, &cr_solution) {
         outln!(o);
         o.push_str(&super::populations::cr_text(c, &escape, sol));

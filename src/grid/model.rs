@@ -27,6 +27,9 @@ pub mod status {
     pub const CR_SINGULAR: u8 = 7;
     /// Collisional–radiative populations: a non-finite rate or population.
     pub const CR_NON_FINITE: u8 = 8;
+    /// A line's equivalent-width integral stopped at its evaluation budget short of its
+    /// tolerance; the values are kept (the best estimate) but flagged.
+    pub const LINE_INTEGRAL_UNCONVERGED: u8 = 9;
     /// Not computed yet.
     pub const NOT_COMPUTED: u8 = 255;
 
@@ -42,6 +45,10 @@ pub mod status {
             (CR_ITERATION_LIMIT, "cr_iteration_limit".into()),
             (CR_SINGULAR, "cr_singular_matrix".into()),
             (CR_NON_FINITE, "cr_non_finite".into()),
+            (
+                LINE_INTEGRAL_UNCONVERGED,
+                "line_integral_unconverged".into(),
+            ),
             (NOT_COMPUTED, "not_computed".into()),
         ]
     }
@@ -277,6 +284,61 @@ fn evaluate_inputs(
     }
     PointValues {
         values,
-        status: status::OK,
+        status: point_status(&strengths),
+    }
+}
+
+/// The status of a point whose state and populations converged: flagged when any line's
+/// integral did not.
+fn point_status(strengths: &[formation::LineStrength]) -> u8 {
+    if strengths.iter().all(|s| s.converged) {
+        status::OK
+    } else {
+        status::LINE_INTEGRAL_UNCONVERGED
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::atoms::lines::Catalogue;
+    use crate::eos::{Composition, Density, EosOptions, StateRequest};
+    use crate::formation::{Background, Geometry, SlabOptions, View};
+
+    #[test]
+    fn an_unconverged_line_integral_flags_the_point() {
+        let state = crate::eos::solve(&StateRequest {
+            temperature: 6000.0,
+            density: Density::GasPressure(1e4),
+            composition: Composition::default(),
+            options: EosOptions::default(),
+        })
+        .unwrap();
+        let opts = SlabOptions {
+            geometry: Geometry::HydrogenColumn(1e22),
+            background: Background::Planck(7200.0),
+            microturbulence: 2e5,
+            view: View::Flux,
+            continuum: true,
+            damping: None,
+        };
+        let line = Catalogue::embedded().get("Ca II K").unwrap();
+        let ok = formation::line_strength(AtomicData::embedded(), &state, &opts, line).unwrap();
+        assert!(ok.converged);
+        assert_eq!(point_status(std::slice::from_ref(&ok)), status::OK);
+        let stopped = formation::LineStrength {
+            converged: false,
+            ..ok.clone()
+        };
+        assert_eq!(
+            point_status(&[ok, stopped]),
+            status::LINE_INTEGRAL_UNCONVERGED
+        );
+        assert!(
+            status::meanings()
+                .iter()
+                .any(|(c, m)| *c == status::LINE_INTEGRAL_UNCONVERGED
+                    && m == "line_integral_unconverged")
+        );
     }
 }
