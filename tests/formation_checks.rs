@@ -241,3 +241,64 @@ fn a_line_far_weaker_than_the_continuum_noise_keeps_its_optically_thin_strength(
     assert!(r <= 1e-4, "W = {w:e} Å, thin limit {thin:e} Å ({r:e})");
     assert!(s.evaluations < 200, "{} evaluations", s.evaluations);
 }
+
+#[test]
+fn li_sr_ba_lines_now_form_in_cool_gas() {
+    // Li, Sr and Ba are in the species table, so their catalogue lines compute: a positive
+    // equivalent width at 5000 K in the photosphere-like slab.
+    let labels = [
+        "Li I 6707.8",
+        "Li I 6707.9",
+        "Sr II 4078",
+        "Sr II 4216",
+        "Ba II 4554",
+        "Ba II 4934",
+    ];
+    let s = strengths(5000.0, &labels);
+    let w: Vec<f64> = s.iter().map(|x| x.equivalent_width.unwrap()).collect();
+    for (x, &w) in s.iter().zip(&w) {
+        assert!(
+            w > 0.0 && x.tau0 > 0.0 && x.lower_column > 0.0,
+            "{}: W {w} tau0 {}",
+            x.label,
+            x.tau0
+        );
+    }
+    // Common practice, no source: the two Li I fine-structure components share the lower
+    // level and nearly the wavelength, and Li is almost fully ionised at 5000 K, so both are
+    // optically thin and W(6707.8)/W(6707.9) = gf ratio = 10^(−0.002 + 0.303) (lines.toml).
+    assert!(s[0].tau0 < 0.01, "Li I 6707.8 tau0 {}", s[0].tau0);
+    let gf = 10f64.powf(-0.002 + 0.303);
+    assert!(
+        (w[0] / w[1] / gf - 1.0).abs() < 1e-3,
+        "W ratio {} vs gf {gf}",
+        w[0] / w[1]
+    );
+    // Common practice, no source: within each resonance doublet (one lower level) the
+    // component with the larger gf is the stronger.
+    assert!(w[2] > w[3] && w[4] > w[5], "{w:?}");
+}
+
+#[test]
+fn sr_ii_and_ba_ii_resonance_lines_weaken_as_the_ions_ionise() {
+    // Common practice, no source: Sr II and Ba II are the dominant stages at 5500 K; as the
+    // gas heats they ionise further (χ = 11.0 and 10.0 eV) and the line source function
+    // approaches the background's, so the resonance lines weaken steadily.
+    let ts = [5500.0, 7000.0, 9000.0, 12000.0];
+    let w: Vec<[f64; 2]> = ts
+        .iter()
+        .map(|&t| {
+            let s = strengths(t, &["Sr II 4078", "Ba II 4554"]);
+            [
+                s[0].equivalent_width.unwrap(),
+                s[1].equivalent_width.unwrap(),
+            ]
+        })
+        .collect();
+    for k in 0..2 {
+        assert!(
+            w.windows(2).all(|p| p[1][k] < p[0][k]),
+            "line {k}: W(T) {w:?} at {ts:?}"
+        );
+    }
+}
