@@ -7,6 +7,8 @@ use linegrid::atoms::AtomicData;
 use linegrid::atoms::lines::Catalogue;
 use linegrid::eos::{Composition, Density, EosOptions, StateRequest, solve};
 use linegrid::formation::{Background, Geometry, LineStrength, SlabOptions, View, line_strength};
+use linegrid::grid::plan::Plan;
+use linegrid::grid::spec::Spec;
 
 fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
     let state = solve(&StateRequest {
@@ -301,4 +303,31 @@ fn sr_ii_and_ba_ii_resonance_lines_weaken_as_the_ions_ionise() {
             "line {k}: W(T) {w:?} at {ts:?}"
         );
     }
+}
+
+#[test]
+fn a_grid_of_the_li_sr_ba_lines_is_planned() {
+    // Before Li, Sr and Ba were in the species table the plan refused these lines ("not in
+    // the species table"); now they plan, selected by label or by species.
+    let text = r#"
+[grid]
+title = "t"
+output = "t.h5"
+[parameters]
+temperature = { values = [5000.0, 6000.0] }
+gas_pressure = 1e4
+hydrogen_column = 1e22
+background_ratio = 1.2
+[lines]
+labels = ["Sr II 4078", "Ba II 4554"]
+species = ["Li I"]
+"#;
+    let spec = Spec::parse(text, "t.toml", std::path::Path::new(".")).unwrap();
+    let plan = Plan::new(spec).unwrap();
+    let mut labels: Vec<&str> = plan.lines.iter().map(|l| l.label.as_str()).collect();
+    labels.sort_unstable();
+    assert_eq!(
+        labels,
+        ["Ba II 4554", "Li I 6707.8", "Li I 6707.9", "Sr II 4078"]
+    );
 }
