@@ -193,7 +193,7 @@ fn constants_and_atoms_listings() {
     assert!(v["constants"]["k"]["value"].as_f64().unwrap() > 0.0);
     let o = linegrid(&["atoms", "--json"]);
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    assert_eq!(v["elements"].as_array().unwrap().len(), 18);
+    assert_eq!(v["elements"].as_array().unwrap().len(), 21);
     let o = linegrid(&["atoms", "--species", "Ca II"]);
     assert!(o.status.success());
     let o = linegrid(&["atoms", "--species", "Qq V"]);

@@ -122,6 +122,115 @@ fn partition_functions_at_5040_k() {
 }
 
 #[test]
+fn partition_functions_of_li_i_sr_ii_ba_ii_match_a_direct_level_sum() {
+    // No published table of U(T) for these species was at hand, so the check value is the
+    // direct sum over the levels that carry U at these temperatures, listed here separately
+    // from species.toml: NIST ASD energies (cm⁻¹) and g, from memory. Li I: 2s, 2p 2P°
+    // (whole term), 3s, 3p, 3d; Sr II: 5s, 4d 2D3/2,5/2, 5p 2P°1/2,3/2; Ba II: 6s, 5d
+    // 2D3/2,5/2, 6p 2P°1/2,3/2. The table's further (higher) levels add < 0.001 dex at
+    // 5040 K, and < 0.002 dex for Sr II and Ba II at 10 080 K; Li I, whose n = 4 and 5 shells
+    // lie 0.6-1 eV below its limit, gains 0.006 dex from them at 7000 K (0.05 dex at 10 080 K,
+    // where it is not checked). Tolerances: 0.002 dex at 5040 K, 0.005 dex and 0.01 dex above.
+    // Resulting check values, log10 U(5040 K): Li I 0.320, Sr II 0.334, Ba II 0.623.
+    let short: [(&str, &[(f64, f64)]); 3] = [
+        (
+            "Li I",
+            &[
+                (0.0, 2.0),
+                (14903.87, 6.0),
+                (27206.1, 2.0),
+                (30925.4, 6.0),
+                (31283.1, 10.0),
+            ],
+        ),
+        (
+            "Sr II",
+            &[
+                (0.0, 2.0),
+                (14555.9, 4.0),
+                (14836.2, 6.0),
+                (23715.2, 2.0),
+                (24516.6, 4.0),
+            ],
+        ),
+        (
+            "Ba II",
+            &[
+                (0.0, 2.0),
+                (4873.85, 4.0),
+                (5674.81, 6.0),
+                (20261.6, 2.0),
+                (21952.4, 4.0),
+            ],
+        ),
+    ];
+    let hc_over_k = 1.438_776_877; // cm K, CODATA 2018 second radiation constant
+    let cases = [
+        (5040.0, 0.002, ["Li I", "Sr II", "Ba II"].as_slice()),
+        (7000.0, 0.01, ["Li I"].as_slice()),
+        (10080.0, 0.005, ["Sr II", "Ba II"].as_slice()),
+    ];
+    for (t, tol, names) in cases {
+        let s = state(t, Density::HydrogenDensity(1e12), Composition::default());
+        for (name, levels) in short.iter().filter(|(n, _)| names.contains(n)) {
+            let direct: f64 = levels
+                .iter()
+                .map(|&(e, g)| g * (-hc_over_k * e / t).exp())
+                .sum();
+            let got = species(&s, name).partition_function;
+            let d = got.log10() - direct.log10();
+            // The table holds every level of the short list, so it can only add.
+            assert!(
+                (-1e-4..tol).contains(&d),
+                "{name} at {t} K: log U {} vs direct {} (diff {d:.4})",
+                got.log10(),
+                direct.log10()
+            );
+        }
+    }
+    let s = state(
+        5040.0,
+        Density::HydrogenDensity(1e12),
+        Composition::default(),
+    );
+    let lu = |n: &str| species(&s, n).partition_function.log10();
+    assert!((lu("Li I") - 0.320).abs() < 0.005, "Li I {}", lu("Li I"));
+    assert!((lu("Sr II") - 0.334).abs() < 0.005, "Sr II {}", lu("Sr II"));
+    assert!((lu("Ba II") - 0.623).abs() < 0.005, "Ba II {}", lu("Ba II"));
+}
+
+#[test]
+fn lithium_iii_is_hydrogen_like_and_li_saha_pairs_with_na() {
+    // Common practice, no source: Li III (one electron, Z = 3) keeps U = 2 far below the
+    // temperatures that populate its n = 2 shell (~92 eV up).
+    let s = state(
+        30_000.0,
+        Density::HydrogenDensity(1e15),
+        Composition::default(),
+    );
+    assert!((species(&s, "Li III").partition_function - 2.0).abs() < 1e-6);
+    // Saha equation (common practice, no source): in one gas, (n_II/n_I)_Li / (n_II/n_I)_Na =
+    // [U_II/U_I]_Li / [U_II/U_I]_Na · exp(−(χ_Li − χ_Na)/kT), the electron density and the
+    // T^{3/2} factor cancelling. χ_Li = 5.39 eV > χ_Na = 5.14 eV, so Li stays more neutral.
+    let t = 6000.0;
+    let s = state(t, Density::GasPressure(1e5), Composition::default());
+    let sp = |n: &str| *species(&s, n);
+    let (li1, li2, na1, na2) = (sp("Li I"), sp("Li II"), sp("Na I"), sp("Na II"));
+    let kt = 8.617_333_262e-5 * t; // eV, CODATA 2018 Boltzmann constant
+    let want = (li2.partition_function / li1.partition_function)
+        / (na2.partition_function / na1.partition_function)
+        * (-(li1.ionization_ev.unwrap() - na1.ionization_ev.unwrap()) / kt).exp();
+    let got = (li2.density / li1.density) / (na2.density / na1.density);
+    assert!((got / want - 1.0).abs() < 1e-6, "{got} vs {want}");
+    assert!(
+        li1.fraction > na1.fraction && li1.fraction < 0.05,
+        "Li I {} Na I {}",
+        li1.fraction,
+        na1.fraction
+    );
+}
+
+#[test]
 fn hydrogen_partition_function_grows_then_dissolves() {
     // Common practice, no source: at fixed T the H I partition function falls as density
     // rises (levels dissolve), and the Debye cut-off gives the same qualitative behaviour.

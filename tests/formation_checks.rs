@@ -7,6 +7,8 @@ use linegrid::atoms::AtomicData;
 use linegrid::atoms::lines::Catalogue;
 use linegrid::eos::{Composition, Density, EosOptions, StateRequest, solve};
 use linegrid::formation::{Background, Geometry, LineStrength, SlabOptions, View, line_strength};
+use linegrid::grid::plan::Plan;
+use linegrid::grid::spec::Spec;
 
 fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
     let state = solve(&StateRequest {
@@ -330,4 +332,92 @@ fn equivalent_widths_match_a_brute_force_sum_over_the_emergent_spectrum() {
         );
     }
     eprintln!("formation against brute force: worst relative error {worst:.1e}");
+}
+
+#[test]
+fn li_sr_ba_lines_now_form_in_cool_gas() {
+    // Li, Sr and Ba are in the species table, so their catalogue lines compute: a positive
+    // equivalent width at 5000 K in the photosphere-like slab.
+    let labels = [
+        "Li I 6707.8",
+        "Li I 6707.9",
+        "Sr II 4078",
+        "Sr II 4216",
+        "Ba II 4554",
+        "Ba II 4934",
+    ];
+    let s = strengths(5000.0, &labels);
+    let w: Vec<f64> = s.iter().map(|x| x.equivalent_width.unwrap()).collect();
+    for (x, &w) in s.iter().zip(&w) {
+        assert!(
+            w > 0.0 && x.tau0 > 0.0 && x.lower_column > 0.0,
+            "{}: W {w} tau0 {}",
+            x.label,
+            x.tau0
+        );
+    }
+    // Common practice, no source: the two Li I fine-structure components share the lower
+    // level and nearly the wavelength, and Li is almost fully ionised at 5000 K, so both are
+    // optically thin and W(6707.8)/W(6707.9) = gf ratio = 10^(−0.002 + 0.303) (lines.toml).
+    assert!(s[0].tau0 < 0.01, "Li I 6707.8 tau0 {}", s[0].tau0);
+    let gf = 10f64.powf(-0.002 + 0.303);
+    assert!(
+        (w[0] / w[1] / gf - 1.0).abs() < 1e-3,
+        "W ratio {} vs gf {gf}",
+        w[0] / w[1]
+    );
+    // Common practice, no source: within each resonance doublet (one lower level) the
+    // component with the larger gf is the stronger.
+    assert!(w[2] > w[3] && w[4] > w[5], "{w:?}");
+}
+
+#[test]
+fn sr_ii_and_ba_ii_resonance_lines_weaken_as_the_ions_ionise() {
+    // Common practice, no source: Sr II and Ba II are the dominant stages at 5500 K; as the
+    // gas heats they ionise further (χ = 11.0 and 10.0 eV) and the line source function
+    // approaches the background's, so the resonance lines weaken steadily.
+    let ts = [5500.0, 7000.0, 9000.0, 12000.0];
+    let w: Vec<[f64; 2]> = ts
+        .iter()
+        .map(|&t| {
+            let s = strengths(t, &["Sr II 4078", "Ba II 4554"]);
+            [
+                s[0].equivalent_width.unwrap(),
+                s[1].equivalent_width.unwrap(),
+            ]
+        })
+        .collect();
+    for k in 0..2 {
+        assert!(
+            w.windows(2).all(|p| p[1][k] < p[0][k]),
+            "line {k}: W(T) {w:?} at {ts:?}"
+        );
+    }
+}
+
+#[test]
+fn a_grid_of_the_li_sr_ba_lines_is_planned() {
+    // Before Li, Sr and Ba were in the species table the plan refused these lines ("not in
+    // the species table"); now they plan, selected by label or by species.
+    let text = r#"
+[grid]
+title = "t"
+output = "t.h5"
+[parameters]
+temperature = { values = [5000.0, 6000.0] }
+gas_pressure = 1e4
+hydrogen_column = 1e22
+background_ratio = 1.2
+[lines]
+labels = ["Sr II 4078", "Ba II 4554"]
+species = ["Li I"]
+"#;
+    let spec = Spec::parse(text, "t.toml", std::path::Path::new(".")).unwrap();
+    let plan = Plan::new(spec).unwrap();
+    let mut labels: Vec<&str> = plan.lines.iter().map(|l| l.label.as_str()).collect();
+    labels.sort_unstable();
+    assert_eq!(
+        labels,
+        ["Ba II 4554", "Li I 6707.8", "Li I 6707.9", "Sr II 4078"]
+    );
 }

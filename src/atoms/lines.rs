@@ -645,6 +645,52 @@ mod tests {
     }
 
     #[test]
+    fn lower_in_table_says_truly_whether_the_lower_level_is_in_the_species_table() {
+        // lines.toml header: lower_in_table = true exactly when lower_cm matches a level of the
+        // species in species.toml to within 1 cm⁻¹. For the Li I, Sr II and Ba II resonance
+        // lines the upper level must be in the table too.
+        let d = AtomicData::embedded();
+        let raw: RawLines = toml::from_str(LINES_TOML).unwrap();
+        let nearest = |levels: &[crate::atoms::Level], e: f64| {
+            levels
+                .iter()
+                .map(|l| (l.energy_cm - e).abs())
+                .fold(f64::INFINITY, f64::min)
+        };
+        let mut with_levels = 0;
+        for r in &raw.line {
+            let k = d.species_index(&r.species);
+            let levels = k.map_or(&[][..], |k| &d.species[k].levels[..]);
+            let matched = nearest(levels, r.lower_cm) <= 1.0;
+            assert_eq!(
+                r.lower_in_table,
+                matched,
+                "{}: lower_in_table = {} but lower_cm {} is {} cm^-1 from a {} level",
+                r.label,
+                r.lower_in_table,
+                r.lower_cm,
+                nearest(levels, r.lower_cm),
+                r.species
+            );
+            if ["Li I", "Sr II", "Ba II"].contains(&r.species.as_str()) {
+                assert!(
+                    nearest(levels, r.upper_cm) <= 1.0,
+                    "{}: upper_cm {} not in the table",
+                    r.label,
+                    r.upper_cm
+                );
+                with_levels += 1;
+            }
+        }
+        assert_eq!(with_levels, 6, "two Li I, two Sr II and two Ba II lines");
+        // Every curated line now belongs to a species of the table.
+        assert!(
+            cat().lines.iter().all(|l| l.species_index.is_some()),
+            "a catalogue line of a species missing from the table"
+        );
+    }
+
+    #[test]
     fn user_csv_is_read_and_bad_rows_are_named() {
         let d = AtomicData::embedded();
         let text = "# my lines\nlabel,species,wavelength_air_nm,lower_cm,upper_cm,g_lower,g_upper,log_gf,family\n\

@@ -345,10 +345,10 @@ mod tests {
     #[test]
     fn embedded_table_parses_and_covers_the_required_species() {
         let d = AtomicData::embedded();
-        // The elements the foundation issue requires.
+        // The elements the foundation issue requires, plus Li, Sr and Ba (catalogue lines).
         for sym in [
-            "H", "He", "C", "N", "O", "Ne", "Na", "Mg", "Al", "Si", "S", "K", "Ca", "Ti", "Cr",
-            "Mn", "Fe", "Ni",
+            "H", "He", "Li", "C", "N", "O", "Ne", "Na", "Mg", "Al", "Si", "S", "K", "Ca", "Ti",
+            "Cr", "Mn", "Fe", "Ni", "Sr", "Ba",
         ] {
             let e = d
                 .element_index(sym)
@@ -369,6 +369,25 @@ mod tests {
                 .is_some()
         );
         assert!(d.species_index("Fe III").is_some());
+        // Li III is hydrogen-like (Z = 3), Li IV the bare nucleus and the top stage.
+        let li3 = &d.species[d.species_index("Li III").unwrap()];
+        assert_eq!(li3.hydrogenic.map(|h| h.z), Some(3));
+        let li = d.element_index("Li").unwrap();
+        assert_eq!(d.species[d.stages[li].end - 1].name, "Li IV");
+        for name in ["Sr IV", "Ba IV"] {
+            let k = d.species_index(name).unwrap();
+            assert!(
+                d.species[k].ionization_ev.is_none(),
+                "{name} is a top stage"
+            );
+        }
+        // The table's element order is by atomic number (header convention).
+        assert!(d.elements.windows(2).all(|w| w[0].z < w[1].z));
+        assert_eq!(
+            (d.elements.len(), d.species.len()),
+            (21, 82),
+            "elements and species (update README/DEVELOPERS if this changes)"
+        );
         assert_eq!(d.digest.len(), 16);
     }
 

@@ -144,7 +144,7 @@ mod tests {
     #[test]
     fn reference_mix_mass_fractions() {
         // Asplund et al. 2009, ARA&A 47, 481, Table 4 (present-day photosphere):
-        // X = 0.7381, Y = 0.2485, Z = 0.0134. Our table has 18 elements, not all 83, so Z
+        // X = 0.7381, Y = 0.2485, Z = 0.0134. Our table has 21 elements, not all 83, so Z
         // comes out a few per cent low; tolerance 0.002 absolute on X and Y, 0.0015 on Z.
         let d = AtomicData::embedded();
         let a = Composition::default().abundances(d).unwrap();
