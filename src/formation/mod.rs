@@ -293,6 +293,8 @@ pub struct LineSetup {
     /// b_u/b_l, the ratio of the departure coefficients of the upper and lower level, where
     /// the populations depart from LTE.
     pub departure_ratio: Option<f64>,
+    /// |x| of the red and the blue end of the reach (see `reach_ends`).
+    ends: [f64; 2],
 }
 
 /// Compute the wavelength-independent quantities of a line in a slab.
@@ -381,6 +383,10 @@ pub fn setup_line(
         stark,
         stim0: stim,
         departure_ratio: None,
+        ends: [
+            line.wavelength_vac * WING_REACH / (1.0 + WING_REACH),
+            line.wavelength_vac * WING_REACH / (1.0 - WING_REACH),
+        ],
         lambda0: line.wavelength_vac,
         nu0,
         widths,
@@ -398,24 +404,23 @@ impl LineSetup {
     /// −λ₀R/(1 − R) ≤ x ≤ λ₀R/(1 + R), beyond which the frequency-dependent factors (Planck
     /// functions, stimulated emission) are held at their value there.
     fn clamped(&self, x: f64) -> f64 {
-        let r = WING_REACH;
         if x > 0.0 {
-            x.min(self.lambda0 * r / (1.0 + r))
+            x.min(self.ends[0])
         } else {
-            x.max(-self.lambda0 * r / (1.0 - r))
+            x.max(-self.ends[1])
         }
     }
 
     /// |x| of the red and the blue end of the reach, where the depth's continuation starts
     /// on either side.
     pub fn reach_ends(&self) -> [f64; 2] {
-        [self.lambda0 * WING_REACH / (1.0 + WING_REACH), self.reach()]
+        self.ends
     }
 
     /// The larger |x| of the two ends of the reach (the blue one), past which the depth is
     /// the continuation on both sides.
     pub fn reach(&self) -> f64 {
-        self.lambda0 * WING_REACH / (1.0 - WING_REACH)
+        self.ends[1]
     }
 
     /// Frequency at offset x: ν = ν₀ (1 − x/λ₀), held constant beyond the reach.
@@ -437,7 +442,7 @@ impl LineSetup {
         let r = 1.0 / (1.0 - xc / self.lambda0);
         // strictly inside: at the end itself the continuation applies (an analytic tail that
         // starts there takes its amplitude from that point)
-        let end = self.reach_ends()[if x > 0.0 { 0 } else { 1 }];
+        let end = self.ends[if x > 0.0 { 0 } else { 1 }];
         if x.abs() < end { r * r } else { r }
     }
 
