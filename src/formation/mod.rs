@@ -730,10 +730,8 @@ pub(crate) fn strengths_of(
     let centre = depth(0.0);
     let guess = half_width_guess(&scale);
     // half widths found in x, reported in wavelength
-    let red_side: Vec<(f64, f64)> = samples.iter().map(|&(x, r, _)| (x, r)).collect();
-    let blue_side: Vec<(f64, f64)> = samples.iter().map(|&(x, _, b)| (x, b)).collect();
-    let red = half_width(&depth, centre, guess, 1.0, &red_side);
-    let blue = half_width(&depth, centre, guess, -1.0, &blue_side);
+    let red = half_width(&depth, centre, guess, 1.0, &samples);
+    let blue = half_width(&depth, centre, guess, -1.0, &samples);
     let fwhm = if red.is_finite() && blue.is_finite() {
         su.wavelength_at(red) - su.wavelength_at(-blue)
     } else {
@@ -830,7 +828,7 @@ pub(crate) fn half_width_guess(scale: &quadrature::LineScale) -> f64 {
 }
 
 /// Distance from line centre (cm, on the side `sign`) where the profile falls to half its
-/// central value: bracketed from `known` (distances ≥ 0 and the profile there on this side,
+/// central value: bracketed from `known` (distances x ≥ 0 with the profile at +x and at −x,
 /// e.g. the points an integral has already evaluated) between the farthest point inside the
 /// half maximum and the next one out; failing that, from the guess `start` by doubling
 /// outward or halving inward; then refined by the Illinois variant of false position
@@ -841,7 +839,7 @@ pub(crate) fn half_width(
     centre: f64,
     start: f64,
     sign: f64,
-    known: &[(f64, f64)],
+    known: &[(f64, f64, f64)],
 ) -> f64 {
     if centre.abs() < f64::MIN_POSITIVE {
         return 0.0;
@@ -850,15 +848,17 @@ pub(crate) fn half_width(
     // g > 0 inside the half-maximum, g < 0 outside.
     let g = |x: f64| (profile(sign * x) - half) * centre.signum();
     let inside = |d: f64| (d - half) * centre.signum();
+    let here = |&(x, red, blue): &(f64, f64, f64)| (x, if sign > 0.0 { red } else { blue });
     let (far_in, g_far_in) = known
         .iter()
-        .filter(|&&(x, d)| x > 0.0 && inside(d) > 0.0)
-        .fold((0.0, centre.abs() - half.abs()), |acc, &(x, d)| {
+        .map(here)
+        .filter(|&(x, d)| x > 0.0 && inside(d) > 0.0)
+        .fold((0.0, centre.abs() - half.abs()), |acc, (x, d)| {
             if x > acc.0 { (x, inside(d)) } else { acc }
         });
-    let next_out = known.iter().filter(|&&(x, _)| x > far_in).fold(
+    let next_out = known.iter().map(here).filter(|&(x, _)| x > far_in).fold(
         None,
-        |acc: Option<(f64, f64)>, &(x, d)| match acc {
+        |acc: Option<(f64, f64)>, (x, d)| match acc {
             Some((xa, _)) if xa <= x => acc,
             _ => Some((x, inside(d))),
         },
