@@ -210,50 +210,16 @@ fn damping_dominated_lines_match_a_brute_force_sum_of_the_model_depth() {
                 su.jacobian(x) * (1.0 - (y / 1.2).exp_m1() / y.exp_m1()) * -(-tau).exp_m1()
             };
             let s = su.widths.doppler_cm;
-            let n = 2_000_000usize;
             let u_max = (1000.0 * su.lambda0 / s).asinh();
-            let h = u_max / n as f64;
-            let mut sum = 0.0;
-            for i in 0..=n {
-                let u = h * i as f64;
-                let w = if i == 0 || i == n {
-                    1.0
-                } else if i % 2 == 1 {
-                    4.0
-                } else {
-                    2.0
-                };
-                let x = s * u.sinh();
-                sum += w * (depth(x) + depth(-x)) * s * u.cosh();
-            }
             let x_end = s * u_max.sinh();
-            let brute = (sum * h / 3.0 + (depth(x_end) + depth(-x_end)) * x_end) * 1e8;
+            let both = |x: f64| depth(x) + depth(-x);
+            let brute = (simpson_sinh(both, s, u_max, 2_000_000) + both(x_end) * x_end) * 1e8;
             let w = got.equivalent_width.unwrap();
-            let beyond = 1.0 - {
-                // the share of W beyond the reach, for the record: the window part alone
-                let r = su.reach_ends();
-                let (ur, ub) = ((r[0] / s).asinh(), (r[1] / s).asinh());
-                let part = |end: f64, sign: f64| {
-                    let m = 200_000usize;
-                    let hh = end / m as f64;
-                    (0..=m)
-                        .map(|i| {
-                            let u = hh * i as f64;
-                            let wt = if i == 0 || i == m {
-                                1.0
-                            } else if i % 2 == 1 {
-                                4.0
-                            } else {
-                                2.0
-                            };
-                            wt * depth(sign * s * u.sinh()) * s * u.cosh()
-                        })
-                        .sum::<f64>()
-                        * hh
-                        / 3.0
-                };
-                (part(ur, 1.0) + part(ub, -1.0)) * 1e8 / brute
-            };
+            // the share of W beyond the reach, for the record
+            let r = su.reach_ends();
+            let window = simpson_sinh(depth, s, (r[0] / s).asinh(), 200_000)
+                + simpson_sinh(|x| depth(-x), s, (r[1] / s).asinh(), 200_000);
+            let beyond = 1.0 - window * 1e8 / brute;
             let err = (w / brute - 1.0).abs();
             assert!(
                 err <= 1e-4,
@@ -267,4 +233,24 @@ fn damping_dominated_lines_match_a_brute_force_sum_of_the_model_depth() {
             assert!(got.evaluations <= 120, "{}", got.evaluations);
         }
     }
+}
+
+/// ∫₀^{u_max} f(s sinh u) s cosh u du = ∫₀^{s sinh u_max} f(x) dx by the composite Simpson
+/// rule with `n` (even) intervals in u.
+fn simpson_sinh(f: impl Fn(f64) -> f64, s: f64, u_max: f64, n: usize) -> f64 {
+    let h = u_max / n as f64;
+    let sum: f64 = (0..=n)
+        .map(|i| {
+            let u = h * i as f64;
+            let w = if i == 0 || i == n {
+                1.0
+            } else if i % 2 == 1 {
+                4.0
+            } else {
+                2.0
+            };
+            w * f(s * u.sinh()) * s * u.cosh()
+        })
+        .sum();
+    sum * h / 3.0
 }
