@@ -768,7 +768,7 @@ pub(crate) fn strengths_of(
 /// The normalised emergent spectrum across one line: for each wavelength offset (cm, from
 /// the vacuum line centre) the pair (vacuum wavelength in cm, F/F_c) — flux, or intensity at
 /// μ, divided by the continuum of the same slab without the line at that wavelength. The
-/// same quantities as [`line_strength`] integrates (1 − F/F_c is its depth profile). Needs a
+/// same quantities as [`line_strength`] integrates (1 − F/F_c is its depth profile) within the reach |Δλ| ≤ `WING_REACH` λ₀; beyond it this gives the physics of each wavelength, where the integral uses its continuation. Needs a
 /// continuum: a Planck background or continuum opacity.
 pub fn line_profile(
     data: &AtomicData,
