@@ -12,8 +12,8 @@
 //! in x: one profile evaluation serves both sides of the line (the equivalent-width integral
 //! is folded, [`quadrature::integrate_folded`]). The stimulated-emission factor, the Planck
 //! functions of source and background and dλ/dx = (λ/λ₀)² are those of the frequency at x,
-//! so both sides differ where they should. Beyond |x| = R = `WING_REACH` λ₀ the depth is
-//! continued from its values at λ₀ ± R λ₀ (R = `WING_REACH`) as the wing's own law in
+//! so both sides differ where they should. Beyond |Δλ| = R λ₀ (R = `WING_REACH`) the depth
+//! is continued from its values at λ₀ ± R λ₀ as the wing's own law in
 //! Δλ = λ − λ₀ (`LineSetup::jacobian`): a damping wing that far out has no physical meaning
 //! (a Lorentzian in frequency does not even vanish as λ → ∞), so this fixes a definite
 //! continuation, and one that hardly depends on R because the ends are symmetric in Δλ
@@ -23,7 +23,7 @@
 //! R = 0.2 instead of 0.1 changes W by at most 6.5×10⁻⁵ (median 3×10⁻⁷), inside the two
 //! integrals' own tolerance. The blue side never reaches λ ≤ 0.
 //!
-//! Line strengths (wavelength offsets x = λ − λ₀ in cm internally, reported in Å):
+//! Line strengths (offsets x in cm internally, widths reported in Å):
 //! - with a background: the equivalent width W_λ = ∫ (1 − F/F_c) dλ (negative for a line in
 //!   emission), the central depth 1 − F(λ₀)/F_c and the FWHM of the depth profile;
 //! - without: the integrated line emission ∫ (F_λ − F_λ,c) dλ in erg s⁻¹ cm⁻² (flux) or
@@ -53,9 +53,9 @@ use crate::opacity::stark::StarkProfile;
 use crate::opacity::voigt::voigt_h;
 use crate::transfer::{quadrature, slab as rt, special};
 
-/// Damping wings are integrated numerically out to |x| = this fraction of λ₀ and continued
-/// analytically beyond as the 1/x² law from there; the frequency-dependent factors of the
-/// depth are held at their values at ±0.1 λ₀ beyond it.
+/// The reach R: the physics is taken as it is out to |Δλ| = R λ₀ on either side; beyond,
+/// the depth is the continuation of the module docs, with the frequency-dependent factors
+/// held at their values at λ₀(1 ± R).
 pub const WING_REACH: f64 = 0.1;
 
 /// How big the slab is.
@@ -591,12 +591,8 @@ pub fn line_strength(
             if y.max(y_bg) < 700.0 {
                 // e^z − 1 by exp where that loses at most a bit (z ≥ 0.7), else by expm1.
                 let em1 = |z: f64| if z >= 0.7 { z.exp() - 1.0 } else { z.exp_m1() };
-                let em1_y = em1(y);
-                let r = em1(y_bg) / em1_y;
-                // 1 − e^{−y} = (e^y − 1)/e^y, LTE (departures use their own closure)
-                let stim = em1_y / (em1_y + 1.0) / su.stim0;
-                let tm = tau_even * stim / mu;
-                return (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec);
+                let per_tau = 1.0 / (su.stim0 * mu);
+                return intensity_depth(em1(y), em1(y_bg), tau_even * per_tau, ec, one_minus_ec);
             }
         }
         let nu = C / lam;
@@ -632,6 +628,7 @@ pub fn line_strength(
     // exponentials; valid where every y of the reach stays in [0.7, 700] (else per side).
     let pair_fast = intensity_bg.and_then(|(mu, t_over_tb, ec, one_minus_ec)| {
         let y0 = HC_OVER_K * su.nu0 / (C * t);
+        // (`wavelength_at` of ±λ₀ is the wavelength of either end of the reach)
         let y_min = HC_OVER_K / (su.wavelength_at(su.lambda0) * t) * t_over_tb.min(1.0);
         let y_max = HC_OVER_K / (su.wavelength_at(-su.lambda0) * t) * t_over_tb.max(1.0);
         (y_min >= 0.7 && y_max < 700.0).then_some((mu, t_over_tb, ec, one_minus_ec, y0))
@@ -639,13 +636,10 @@ pub fn line_strength(
     match pair_fast {
         Some((mu, t_over_tb, ec, one_minus_ec, y0)) => {
             let (e0, e0_bg) = (y0.exp(), (y0 * t_over_tb).exp());
-            let inv_stim0 = 1.0 / su.stim0;
+            let per_tau = 1.0 / (su.stim0 * mu);
             let pair = |x: f64, tau_even: f64| -> (f64, f64) {
                 let side = |ey: f64, ey_bg: f64| {
-                    let (em1, em1_bg) = (ey - 1.0, ey_bg - 1.0);
-                    let r = em1_bg / em1;
-                    let tm = tau_even * em1 / ey * inv_stim0 / mu;
-                    (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec)
+                    intensity_depth(ey - 1.0, ey_bg - 1.0, tau_even * per_tau, ec, one_minus_ec)
                 };
                 let (red, blue) = (su.clamped(x), su.clamped(-x));
                 let delta = y0 * red / su.lambda0;
@@ -674,6 +668,17 @@ pub fn line_strength(
             fc0,
         )),
     }
+}
+
+/// 1 − I/I_c in intensity against a Planck background (LTE), from e^y − 1 and e^{y_bg} − 1
+/// (y = hν/kT, y_bg = hν/kT_bg), the line's optical depth along the ray per unit of its
+/// stimulated-emission factor, `tau_per_stim` = τ_even/(stim₀ μ), and e^{−τ_c/μ}, 1 − e^{−τ_c/μ}:
+/// r = S/I_bg = (e^{y_bg} − 1)/(e^y − 1), stimulated emission 1 − e^{−y} = (e^y − 1)/e^y,
+/// depth (1 − r) e^{−τ_c/μ} (1 − e^{−τ/μ}) / (e^{−τ_c/μ} + r (1 − e^{−τ_c/μ})).
+fn intensity_depth(em1_y: f64, em1_bg: f64, tau_per_stim: f64, ec: f64, one_minus_ec: f64) -> f64 {
+    let r = em1_bg / em1_y;
+    let tm = tau_per_stim * em1_y / (em1_y + 1.0);
+    (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec)
 }
 
 /// 1 − e^{−τ} without cancellation and, for small τ, without an exponential.
@@ -768,8 +773,10 @@ pub(crate) fn strengths_of(
 /// The normalised emergent spectrum across one line: for each wavelength offset (cm, from
 /// the vacuum line centre) the pair (vacuum wavelength in cm, F/F_c) — flux, or intensity at
 /// μ, divided by the continuum of the same slab without the line at that wavelength. The
-/// same quantities as [`line_strength`] integrates (1 − F/F_c is its depth profile) within the reach |Δλ| ≤ `WING_REACH` λ₀; beyond it this gives the physics of each wavelength, where the integral uses its continuation. Needs a
-/// continuum: a Planck background or continuum opacity.
+/// same quantities as [`line_strength`] integrates (1 − F/F_c is its depth profile) within
+/// the reach |Δλ| ≤ `WING_REACH` λ₀; beyond it this gives the physics of each wavelength,
+/// where the integral uses its continuation. Needs a continuum: a Planck background or
+/// continuum opacity.
 pub fn line_profile(
     data: &AtomicData,
     state: &State,
