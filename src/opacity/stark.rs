@@ -54,6 +54,7 @@ use std::f64::consts::PI;
 use std::sync::OnceLock;
 
 use crate::constants::{A0, E_CHARGE, HC};
+use crate::opacity::voigt::voigt_h;
 
 /// Largest lower principal quantum number for which patterns are computed.
 pub const MAX_LOWER: u32 = 6;
@@ -706,14 +707,14 @@ fn fourier_h(y: f64, r: f64, g: f64) -> f64 {
     2.0 / PI * sum * 0.5 * h
 }
 
-/// H(i·dy; r, 0) for i = 0 … count − 1 (see [`fourier_h`]): the same integral on one set of
+/// H(i·dy; r, g) for i = 0 … count − 1 (see [`fourier_h`]): the same integral on one set of
 /// nodes for the whole row, with panels resolving the phase of its largest y. The factor
-/// u(1 − 1.5u³)e^{−u³ − r²u⁴/4} is computed once per node, and cos(i·dy·u²) by rotating
+/// u(1 − 1.5u³)e^{−u³ − r²u⁴/4 − g u²/2} is computed once per node, and cos(i·dy·u²) by rotating
 /// e^{i·dy·u²} step by step, re-anchored to a directly computed sin/cos every
 /// `ROW_ANCHOR` steps so that rounding cannot accumulate (≤ 64 steps of ≈ 2ε each).
-fn fourier_h_row(dy: f64, count: usize, r: f64) -> Vec<f64> {
+fn fourier_h_row(dy: f64, count: usize, r: f64, g: f64) -> Vec<f64> {
     const ROW_ANCHOR: usize = 64;
-    let expo = |u: f64| u * u * u + 0.25 * r * r * u.powi(4);
+    let expo = |u: f64| u * u * u + 0.25 * r * r * u.powi(4) + 0.5 * g * u * u;
     let (mut lo, mut hi) = (0.0, 4.0);
     for _ in 0..80 {
         let mid = 0.5 * (lo + hi);
@@ -859,7 +860,7 @@ impl GaussTable {
             let r = (self.p0 + j as f64 * self.hp).exp();
             let b = (1.0 + r * r).sqrt();
             let mut f = vec![0.0; nv];
-            for (i, h) in fourier_h_row(b * self.hv, nv - 2, r)
+            for (i, h) in fourier_h_row(b * self.hv, nv - 2, r, 0.0)
                 .into_iter()
                 .enumerate()
             {
@@ -962,16 +963,330 @@ fn gauss_h(y: f64, s: &RatioStencil) -> f64 {
 }
 
 // ---------------------------------------------------------------------------------------
+// Holtsmark ⊗ Voigt: a Lorentzian on every component
+// ---------------------------------------------------------------------------------------
+
+/// Largest Doppler ratio tabulated for components with a Lorentzian. Beyond, the table's
+/// last rows are used: (H − V)/W tends to a limit as r → ∞ (the Holtsmark part of the
+/// core scales as r^{−5/2}, like W), reached to O(r^{−3/2}) ≈ 3e-8.
+const R_HI_V: f64 = 1.0e5;
+/// The Lorentz coordinate of the tables: q = ln(1 + x/X0) with x = (g/2)/b₀ the Lorentz
+/// half width relative to b₀ = √(1 + r²) (b₀ = 1 for the table at r = 0), so that the
+/// nodes are X0 hq apart in x for narrow Lorentzians and 10 % apart (hq = 0.1) for wide
+/// ones; the width scale of a row is b = b₀ (1 + x).
+const X0: f64 = 0.03;
+/// Largest q tabulated: x up to 10⁴. Wider Lorentzians make the component the Voigt
+/// function alone.
+const Q_MAX: f64 = 12.716_901_269_291_665; // ln(1 + 1e4/X0)
+const NQ: usize = 128;
+/// Extent in v of the table for r < R_LO (its Gauss–Hermite nodes reach past V_MAX).
+const V_MAX_S: f64 = 14.0;
+/// Terms n = 3 … NS of the far-wing series in (b/y)^{n/2}.
+const NS: usize = 72;
+
+struct VoigtTables {
+    /// Rows (j, k) (index j·nq + k) of (H − V)/W (see [`wing_scale`]) at y = b v_i,
+    /// v_i = (i − 2) hv, for p_j = ln r_j = p0 + j hp (r ≥ R_LO, the Gauss table's nodes
+    /// continued to R_HI_V) and q_k = k hq (see [`X0`]);
+    /// each built at first use.
+    rows: Vec<OnceLock<Vec<f64>>>,
+    /// Rows k of b H(b v; 0, g) (linear: H(0; 0, 0) = 0) for r < R_LO, b = 1 + g/2,
+    /// at v_i = (i − 2) hv_small up to V_MAX_S.
+    small: Vec<OnceLock<Vec<f64>>>,
+    hv: f64,
+    p0: f64,
+    hp: f64,
+    np: usize,
+    hq: f64,
+    nq: usize,
+    nv: usize,
+    nv_small: usize,
+    /// v spacing of the r = 0 rows (finer: their minimum at y = 0 is not filled by a
+    /// Gaussian).
+    hv_small: f64,
+    /// M[n] = Γ(n/2 + 1) cos(π(n + 2)/4)/π: (1/π)∫₀^∞ τ^{n/2} cos(yτ) dτ = M[n] y^{−n/2−1}.
+    moments: [f64; NS + 1],
+}
+
+fn voigt_tables() -> &'static VoigtTables {
+    static T: OnceLock<VoigtTables> = OnceLock::new();
+    T.get_or_init(|| {
+        let g = gauss_table();
+        let np = ((R_HI_V.ln() - g.p0) / g.hp).ceil() as usize + 3;
+        let nq = NQ + 3;
+        let mut moments = [0.0; NS + 1];
+        for (n, m) in moments.iter_mut().enumerate() {
+            let c = (PI * (n as f64 + 2.0) / 4.0).cos();
+            let c = if c.abs() < 1e-12 { 0.0 } else { c };
+            *m = gamma_halves(n as u32 + 2) * c / PI;
+        }
+        VoigtTables {
+            rows: (0..np * nq).map(|_| OnceLock::new()).collect(),
+            small: (0..nq).map(|_| OnceLock::new()).collect(),
+            hv: g.hv,
+            p0: g.p0,
+            hp: g.hp,
+            np,
+            hq: Q_MAX / NQ as f64,
+            nq,
+            nv: g.nv,
+            nv_small: (2.0 * V_MAX_S / g.hv).ceil() as usize + 5,
+            hv_small: 0.5 * g.hv,
+            moments,
+        }
+    })
+}
+
+impl VoigtTables {
+    fn row(&self, j: usize, k: usize) -> &[f64] {
+        self.rows[j * self.nq + k].get_or_init(|| {
+            let r = (self.p0 + j as f64 * self.hp).exp();
+            let b0 = (1.0 + r * r).sqrt();
+            let x = X0 * (k as f64 * self.hq).exp_m1();
+            let (b, g) = (b0 * (1.0 + x), 2.0 * b0 * x);
+            let mut f = vec![0.0; self.nv];
+            for (i, h) in fourier_h_row(b * self.hv, self.nv - 2, r, g)
+                .into_iter()
+                .enumerate()
+            {
+                let y = i as f64 * b * self.hv;
+                f[i + 2] = (h - unit_voigt(y, r, g)) / wing_scale(y, b);
+            }
+            f[0] = f[4];
+            f[1] = f[3];
+            f
+        })
+    }
+
+    fn small_row(&self, k: usize) -> &[f64] {
+        self.small[k].get_or_init(|| {
+            let x = X0 * (k as f64 * self.hq).exp_m1();
+            let (b, g) = (1.0 + x, 2.0 * x);
+            let mut f = vec![0.0; self.nv_small];
+            for (i, h) in fourier_h_row(b * self.hv_small, self.nv_small - 2, 0.0, g)
+                .into_iter()
+                .enumerate()
+            {
+                f[i + 2] = b * h;
+            }
+            f[0] = f[4];
+            f[1] = f[3];
+            f
+        })
+    }
+}
+
+/// The unit-area Voigt function of Gaussian 1/e half width r and Lorentz FWHM g.
+#[inline]
+fn unit_voigt(y: f64, r: f64, g: f64) -> f64 {
+    voigt_h(0.5 * g / r, y / r) / (r * PI.sqrt())
+}
+
+/// W(y) = (A/2)(b² + y²)^{−5/4}: the Holtsmark wing of a pair, regularised at y = 0. The
+/// tables hold (H − V)/W, V the unit Voigt function: the Stark part of the component
+/// relative to its own scale, of order one and smooth in all three variables (also as
+/// g → 0, where the Lorentz floor that V and H share would make H/V or ln H jump).
+#[inline]
+fn wing_scale(y: f64, b: f64) -> f64 {
+    let q = b * b + y * y;
+    0.5 * HOLTSMARK_TAIL / (q * q.sqrt().sqrt())
+}
+
+/// How a component with a Lorentzian is evaluated inside the far wing.
+#[derive(Debug, Clone, Copy)]
+enum VoigtCore {
+    /// r ≥ R_LO: V plus W times the tricubic interpolation of (H − V)/W (stencils in
+    /// p = ln r and q).
+    Table {
+        j: usize,
+        wp: [f64; 4],
+        k: usize,
+        wq: [f64; 4],
+    },
+    /// r < R_LO: Gauss–Hermite quadrature over the Doppler variable of H(·; 0, g),
+    /// interpolated (bicubic, linear values) in the table for r = 0; `gh` picks the rule.
+    Small {
+        k: usize,
+        wq: [f64; 4],
+        b0: f64,
+        gh: usize,
+    },
+    /// x > 10⁴ (see [`X0`]): the Voigt function alone, the Stark part being
+    /// ≈ 2.5 x^{−3/2} ≤ 3e-6 of it.
+    Plain,
+}
+
+/// A component's Doppler ratio r and Lorentz width g (FWHM), both in units of its C F₀,
+/// with what [`voigt_component`] needs precomputed.
+#[derive(Debug, Clone)]
+struct VoigtStencil {
+    r: f64,
+    g: f64,
+    /// Width scale b = √(1 + r²) + g/2; beyond y = V_MAX b the far-wing form.
+    b: f64,
+    core: VoigtCore,
+    /// D_n of H − V ≈ (1/y) Σ_{n=3}^{n_used} D_n (b/y)^{n/2} (V the unit Voigt function).
+    tail: [f64; NS + 1],
+    n_used: usize,
+}
+
+impl VoigtStencil {
+    fn new(r: f64, g: f64) -> VoigtStencil {
+        let t = voigt_tables();
+        let b0 = (1.0 + r * r).sqrt();
+        let b = b0 + 0.5 * g;
+        let q_small = (0.5 * g / X0).ln_1p();
+        let q = (0.5 * g / (b0 * X0)).ln_1p();
+        let core = if (r < R_LO && q_small > Q_MAX) || q > Q_MAX {
+            VoigtCore::Plain
+        } else if r < R_LO {
+            let (k, wq) = stencil(q_small, 0.0, t.hq, t.nq);
+            let gh = if r < 0.05 {
+                0
+            } else if r < 0.3 {
+                1
+            } else {
+                2
+            };
+            VoigtCore::Small {
+                k,
+                wq,
+                b0: 1.0 + 0.5 * g,
+                gh,
+            }
+        } else {
+            let (j, wp) = stencil(r.ln().min(R_HI_V.ln()), t.p0, t.hp, t.np);
+            let (k, wq) = stencil(q, 0.0, t.hq, t.nq);
+            VoigtCore::Table { j, wp, k, wq }
+        };
+        // Q̂(τ) − 1 = Σ_{m≥1} c_m τ^{3m/2}, c_m = (−1)^m (1 + 3m/2)/m!, and
+        // e^{−gτ/2 − r²τ²/4} = Σ_k e_k τ^k ((k+1) e_{k+1} = −(g/2) e_k − (r²/2) e_{k−1});
+        // both scaled by b so that every coefficient is of order one or less.
+        let mut e = [0.0; NS / 2 + 1];
+        e[0] = 1.0;
+        let (c1, c2) = (0.5 * g / b, 0.5 * (r / b) * (r / b));
+        for k in 0..NS / 2 {
+            let prev = if k > 0 { e[k - 1] } else { 0.0 };
+            e[k + 1] = -(c1 * e[k] + c2 * prev) / (k as f64 + 1.0);
+        }
+        let mut tail = [0.0; NS + 1];
+        let bm = b.powf(-1.5);
+        let mut cm = 1.0;
+        let mut fact = 1.0;
+        for m in 1..=NS / 3 {
+            cm *= -bm;
+            fact *= m as f64;
+            let c = cm * (1.0 + 1.5 * m as f64) / fact;
+            let mut n = 3 * m;
+            let mut k = 0;
+            while n <= NS {
+                tail[n] += c * e[k];
+                n += 2;
+                k += 1;
+            }
+        }
+        let mut n_used = 3;
+        let w2 = 1.0 / V_MAX;
+        let mut largest: f64 = 0.0;
+        for (n, d) in tail.iter_mut().enumerate() {
+            *d *= t.moments[n];
+            let size = d.abs() * w2.powf(0.5 * n as f64);
+            largest = largest.max(size);
+            if size > 1e-18 * largest {
+                n_used = n;
+            }
+        }
+        VoigtStencil {
+            r,
+            g,
+            b,
+            core,
+            tail,
+            n_used,
+        }
+    }
+
+    #[inline]
+    fn voigt(&self, y: f64) -> f64 {
+        unit_voigt(y, self.r, self.g)
+    }
+
+    /// H − V in the far wing, y ≥ V_MAX b.
+    #[inline]
+    fn far(&self, y: f64) -> f64 {
+        let w = (self.b / y).sqrt();
+        let mut s = 0.0;
+        for &d in self.tail[3..=self.n_used].iter().rev() {
+            s = s * w + d;
+        }
+        s * w * w * w / y
+    }
+}
+
+/// H(y; r, g) = (Q ∗ G_r ∗ L_g)(y): the Doppler- and Lorentz-convolved density of a
+/// symmetric pair of Holtsmark components, in units of the component's C F₀.
+fn voigt_component(y: f64, s: &VoigtStencil) -> f64 {
+    let y = y.abs();
+    let v = y / s.b;
+    if v > V_MAX {
+        return s.voigt(y) + s.far(y);
+    }
+    let t = voigt_tables();
+    match s.core {
+        VoigtCore::Plain => s.voigt(y),
+        VoigtCore::Table { j, wp, k, wq } => {
+            let sv = v / t.hv + 2.0;
+            let i = (sv.floor() as usize).clamp(1, t.nv - 3);
+            let wv = lagrange4(sv - i as f64);
+            let mut f = 0.0;
+            for (a, &wpa) in wp.iter().enumerate() {
+                let mut fa = 0.0;
+                for (c, &wqc) in wq.iter().enumerate() {
+                    let row = &t.row(j + a, k + c)[i - 1..i + 3];
+                    fa += wqc * (wv[0] * row[0] + wv[1] * row[1] + wv[2] * row[2] + wv[3] * row[3]);
+                }
+                f += wpa * fa;
+            }
+            s.voigt(y) + f * wing_scale(y, s.b)
+        }
+        VoigtCore::Small { k, wq, b0, gh } => {
+            let (x, w) = &gauss_table().gh[gh];
+            let rows = [
+                t.small_row(k),
+                t.small_row(k + 1),
+                t.small_row(k + 2),
+                t.small_row(k + 3),
+            ];
+            let mut sum = 0.0;
+            for (&xi, &wi) in x.iter().zip(w) {
+                let sv = (y - s.r * xi).abs() / (b0 * t.hv_small) + 2.0;
+                let i = (sv.floor() as usize).clamp(1, t.nv_small - 3);
+                let wv = lagrange4(sv - i as f64);
+                let mut h = 0.0;
+                for (row, &wqc) in rows.iter().zip(&wq) {
+                    let row = &row[i - 1..i + 3];
+                    h += wqc * (wv[0] * row[0] + wv[1] * row[1] + wv[2] * row[2] + wv[3] * row[3]);
+                }
+                sum += wi * h;
+            }
+            sum / (b0 * PI.sqrt())
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------------------
 // Line profile
 // ---------------------------------------------------------------------------------------
 
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 struct Component {
     /// C F₀ for this |X|, cm.
     scale: f64,
     /// Relative strength of the pair.
     weight: f64,
     ratio: RatioStencil,
+    /// With a Lorentzian: its stencil (the Lorentz width in units of `scale`).
+    voigt: Option<VoigtStencil>,
 }
 
 /// Quasi-static Stark profile of one hydrogen-like line in wavelength, Doppler-convolved,
@@ -1035,6 +1350,8 @@ impl StarkProfile {
                     scale,
                     weight: w,
                     ratio: RatioStencil::new(doppler_cm / scale),
+                    voigt: (lorentz_fwhm_cm > 0.0)
+                        .then(|| VoigtStencil::new(doppler_cm / scale, lorentz_fwhm_cm / scale)),
                 });
             } else {
                 // No field: everything is unshifted.
@@ -1085,16 +1402,31 @@ impl StarkProfile {
     /// with a Lorentzian, the Voigt function). Δλ in cm from the unperturbed line.
     pub fn phi(&self, dlambda_cm: f64) -> f64 {
         if self.lorentz_hwhm > 0.0 {
-            self.phi_lorentz(dlambda_cm)
+            self.phi_voigt(dlambda_cm)
         } else {
             self.phi_gauss(dlambda_cm)
         }
     }
 
-    /// Lorentz convolution of `phi_gauss` by the substitution x = γ tan θ (the Lorentzian
+    /// The profile with the Lorentzian on every component: the central weight times the
+    /// Voigt function plus one look-up per shifted component ([`voigt_component`]).
+    fn phi_voigt(&self, dl: f64) -> f64 {
+        let d = self.doppler;
+        let mut sum = self.central * voigt_h(self.lorentz_hwhm / d, dl / d) / (d * PI.sqrt());
+        for c in &self.components {
+            if let Some(v) = &c.voigt {
+                sum += c.weight * voigt_component(dl / c.scale, v) / c.scale;
+            }
+        }
+        sum
+    }
+
+    /// Lorentz convolution of `phi_gauss` by the substitution x = γ tan θ (the slow twin of
+    /// `phi_voigt`, kept for the tests) (the Lorentzian
     /// becomes dθ/π), Gauss–Legendre panels between the images of geometrically spaced
     /// points of both the profile's structure (around its centre) and the Lorentzian's
     /// (around Δλ). Accurate (~1e-6) but some 300 evaluations of the Gaussian profile.
+    #[cfg(test)]
     fn phi_lorentz(&self, dl: f64) -> f64 {
         let g = self.lorentz_hwhm;
         let smin = self
@@ -1152,6 +1484,7 @@ impl StarkProfile {
     }
 }
 
+#[cfg(test)]
 fn gl6() -> &'static (Vec<f64>, Vec<f64>) {
     static R: OnceLock<(Vec<f64>, Vec<f64>)> = OnceLock::new();
     R.get_or_init(|| gauss_legendre(6))
@@ -1683,7 +2016,7 @@ mod tests {
         for &r in &[0.8, 3.0, 40.0, 1000.0] {
             let b = (1.0f64 + r * r).sqrt();
             let dy = b * V_MAX / NV as f64;
-            let row = fourier_h_row(dy, NV + 3, r);
+            let row = fourier_h_row(dy, NV + 3, r, 0.0);
             for (i, &h) in row.iter().enumerate() {
                 let direct = fourier_h(i as f64 * dy, r, 0.0);
                 let err = (h - direct).abs() / (direct.abs() + 1e-15 / b);
@@ -1768,6 +2101,45 @@ mod tests {
             }
         }
         assert!(worst < 2e-6, "{worst} at {worst_at:?}");
+    }
+
+    #[test]
+    fn lorentz_components_match_the_fourier_integral() {
+        // H(y; r, g) against the direct Fourier integral over the whole (r, g) plane the
+        // profiles use: both sides of R_LO, past R_HI and R_HI_V, Lorentz half widths from
+        // 1e-6 to 2e4 times b₀ = √(1 + r²), cores, the table's edge v = 8 and far wings.
+        // Error relative to the value plus 1 % of the component's peak (the bottom of the
+        // minimum at y = 0 of a Stark-dominated component is never what the profile is made
+        // of there: the central components and the neighbours fill it).
+        let mut worst: f64 = 0.0;
+        let mut worst_at = (0.0, 0.0, 0.0);
+        for &r in &[
+            0.01, 0.1, 0.5, 0.79, 0.81, 1.5, 5.0, 30.0, 300.0, 2000.0, 2.0e5,
+        ] {
+            let b0 = f64::hypot(1.0, r);
+            for &ratio in &[1e-6, 1e-3, 0.03, 0.3, 1.0, 3.0, 30.0, 300.0, 5e3, 2e4] {
+                let g = 2.0 * b0 * ratio;
+                let s = VoigtStencil::new(r, g);
+                let peak = (0..200)
+                    .map(|i| fourier_h(0.02 * i as f64 * s.b, r, g))
+                    .fold(0.0, f64::max);
+                for &v in &[
+                    0.0, 0.05, 0.3, 1.0, 2.0, 4.0, 7.9, 8.1, 12.0, 30.0, 100.0, 1000.0,
+                ] {
+                    let y = v * s.b;
+                    let slow = fourier_h(y, r, g);
+                    let e = (voigt_component(y, &s) - slow).abs() / (slow.abs() + 1e-2 * peak);
+                    if e > worst {
+                        worst = e;
+                        worst_at = (r, ratio, v);
+                    }
+                }
+            }
+        }
+        eprintln!(
+            "Lorentz components vs Fourier integral: worst {worst:.1e} at (r, g/2b0, v) = {worst_at:?}"
+        );
+        assert!(worst < 2e-5, "{worst:.2e} at {worst_at:?}");
     }
 
     // ---- profiles ----------------------------------------------------------------------
@@ -1855,6 +2227,28 @@ mod tests {
             "profile vs Fourier twin: worst relative error {worst:.1e} over {} profiles",
             cases.len()
         );
+    }
+
+    #[test]
+    fn lorentz_profiles_match_the_real_space_convolution() {
+        // The tables are built from Fourier integrals; this twin convolves the Gaussian
+        // profile with the Lorentzian in real space instead (an independent route).
+        let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
+        let mut worst: f64 = 0.0;
+        for &(nl, nu, ne) in &[(1u32, 2u32, 1e14), (2, 3, 1e17), (2, 4, 1e13), (2, 8, 1e15)] {
+            let lam = h.vacuum_wavelength(nl, nu);
+            let dop = hydrogen_doppler(lam, T4);
+            for &lor in &[0.02 * dop, 2.0 * dop] {
+                let p = StarkProfile::new(nl, nu, 1, lam, ne, dop, lor);
+                let w = p.components.last().map_or(0.0, |c| c.scale) + dop;
+                for &x in &[0.0, 0.2, 0.9, 2.0, 5.0, 20.0, 300.0] {
+                    let dl = x * w;
+                    worst = worst.max(rel(p.phi(dl), p.phi_lorentz(dl)));
+                }
+            }
+        }
+        eprintln!("Lorentz profiles vs real-space convolution: worst {worst:.1e}");
+        assert!(worst < 2e-5, "{worst:.2e}");
     }
 
     #[test]
