@@ -34,10 +34,11 @@
 //! plasma's fields), so high series members fade into the continuum. Their profile is the
 //! linear Stark effect in the quasi-static approximation ([`crate::opacity::stark`]): the
 //! shifted Stark components follow the Holtsmark distribution of the ion field (ion density
-//! taken equal to n_e) convolved with the Doppler core, and the unshifted components keep a
-//! Voigt profile with the radiative and van der Waals widths. Electron-impact broadening of
-//! hydrogen lines is not included (the cores of lines with unshifted components, e.g. Hα,
-//! come out too narrow at high density).
+//! taken equal to n_e) convolved with the Doppler core, and every component, shifted or
+//! not, with the Lorentzian of the radiative, self- and van der Waals widths
+//! ([`crate::opacity::broadening`]). Electron-impact broadening of hydrogen lines is not
+//! included (the cores of lines with unshifted components, e.g. Hα, come out too narrow at
+//! high density).
 
 pub mod departures;
 pub mod growth;
@@ -89,7 +90,7 @@ pub enum View {
 }
 
 /// A fixed damping law that replaces every line's own broadening rules: the Lorentz width
-/// (FWHM, rad s⁻¹) is Γ = `radiative` + `stark_coefficient` · n_e^{2/3}, no van der Waals
+/// (FWHM, rad s⁻¹) is Γ = `radiative` + `stark_coefficient` · n_e^{2/3}, no van der Waals or self-broadening
 /// term, and hydrogen lines keep a plain Voigt profile (no linear Stark pattern). Meant for
 /// comparisons with simplified models.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -351,6 +352,7 @@ pub fn setup_line(
     if let Some(d) = opts.damping {
         widths.gamma_rad = d.radiative;
         widths.gamma_vdw = 0.0;
+        widths.gamma_self = 0.0;
         widths.gamma_stark = d.stark_coefficient * state.electron_density.powf(2.0 / 3.0);
     }
     let a = widths.damping_parameter();
@@ -374,7 +376,10 @@ pub fn setup_line(
                 line.wavelength_vac,
                 state.electron_density,
                 widths.doppler_cm,
-                0.0,
+                // Every Lorentz width (radiative, self- and van der Waals broadening) as
+                // FWHM in wavelength, Δλ = λ²Γ/(2πc), on every Stark component.
+                line.wavelength_vac * line.wavelength_vac * widths.gamma()
+                    / (2.0 * std::f64::consts::PI * C),
             ))
         }
         _ => None,
@@ -478,18 +483,13 @@ impl LineSetup {
     pub fn profile_tau(&self, x: f64) -> f64 {
         // v = Δν/Δν_D = −x/Δλ_D exactly, so the profile is even in x and its damping wings
         // fall exactly as 1/x² (the analytic tail then holds to infinity).
-        let v = x / self.widths.doppler_cm;
-        let h = voigt_h(self.a, v);
         match &self.stark {
-            None => self.kappa_scale * h * self.thickness,
+            None => self.kappa_scale * voigt_h(self.a, x / self.widths.doppler_cm) * self.thickness,
             Some(sp) => {
-                // φ_λ = shifted components (Holtsmark ⊗ Doppler) + central weight × Voigt;
-                // `phi` holds the central weight with a pure Gaussian, swapped here.
-                let dl = self.widths.doppler_cm;
+                // φ_λ: every component (Holtsmark ⊗ Doppler ⊗ Lorentz, the unshifted ones
+                // Doppler ⊗ Lorentz), per cm.
                 let sqrt_pi = std::f64::consts::PI.sqrt();
-                let gauss = (-v * v).exp() / (sqrt_pi * dl);
-                let voigt = h / (sqrt_pi * dl);
-                let phi_lambda = sp.phi(x) + sp.central() * (voigt - gauss);
+                let phi_lambda = sp.phi(x);
                 // κ_scale H/(√π Δν_D) per unit φ_ν; φ_ν = φ_λ Δλ_D/Δν_D·(1/Δλ_D)… i.e.
                 // φ_ν = φ_λ λ²/c, and κ_scale = (πe²/mc) f n_l stim/(√π Δν_D).
                 let per_phi_nu = self.kappa_scale * sqrt_pi * self.widths.doppler_hz;
@@ -516,10 +516,8 @@ impl LineSetup {
         let v_per_x = dnu_per_x / self.widths.doppler_hz;
         let lorentz = self.kappa_scale * self.thickness * self.a
             / (std::f64::consts::PI.sqrt() * v_per_x * v_per_x);
-        // Only the unshifted Stark components carry the Lorentz wing.
-        self.stark
-            .as_ref()
-            .map_or(lorentz, |sp| lorentz * sp.central())
+        // Every Stark component carries the Lorentz wing, so all of the line does.
+        lorentz
     }
 }
 

@@ -19,8 +19,20 @@
 //!   otherwise the estimate Γ₄ = 10⁻⁸ n*⁵ N_e rad s⁻¹ with the effective quantum number of
 //!   the upper level n*² = Z² R/(I − χ_u) (Cowley 1971, The Observatory 91, 139; from memory).
 //!
-//! Not yet included: the linear Stark effect and resonance (self-) broadening of hydrogen
-//! lines — hydrogen lines have thermal, radiative and van der Waals widths only.
+//! - self-broadening of neutral-hydrogen lines by ground-state hydrogen atoms
+//!   ([`hydrogen_self_broadening`]): for Hα, Hβ and Hγ the cross-sections of Barklem,
+//!   Piskunov & O'Mara (2000, A&A 363, 1091, Table 3; σ and α from memory), which include
+//!   resonance and van der Waals interaction together (the Unsöld term is then dropped),
+//!   with the half width w = (4/π)^{α/2} Γ(2 − α/2) v̄ σ(v₀) (v̄/v₀)^{−α} N_H (Anstee & O'Mara
+//!   1995, MNRAS 276, 859), v₀ = 10⁶ cm s⁻¹, v̄ = √(8kT/(πμ)), μ = m_H/2; for every other H I
+//!   line the impact resonance width of each shell ℓ ≥ 2 through its p states,
+//!   Γ_ℓ = 4πk √(g₁/g_p) e² f₁ℓ/(m_e ω₁ℓ) N_H with k = 0.96 (Ali & Griem 1965, Phys. Rev. 140,
+//!   A1044; 1966, Phys. Rev. 144, 366; constants from memory), weighted by the share 3/ℓ² of
+//!   the shell's states that are p states (1 for the upper shell of a Lyman line, which
+//!   only p states feed), added to Unsöld's van der Waals width.
+//!
+//! The linear Stark effect of hydrogen-like lines is in [`crate::opacity::stark`]; these
+//! Lorentz widths are convolved with every one of its components.
 
 use crate::atoms::hydrogenic::Hydrogenic;
 use crate::atoms::lines::Line;
@@ -52,12 +64,14 @@ pub struct Widths {
     pub gamma_vdw: f64,
     /// Quadratic Stark damping, rad s⁻¹ (FWHM).
     pub gamma_stark: f64,
+    /// Self-broadening by ground-state hydrogen (H I lines only), rad s⁻¹ (FWHM).
+    pub gamma_self: f64,
 }
 
 impl Widths {
     /// Total Lorentzian width Γ, rad s⁻¹.
     pub fn gamma(&self) -> f64 {
-        self.gamma_rad + self.gamma_vdw + self.gamma_stark
+        self.gamma_rad + self.gamma_vdw + self.gamma_stark + self.gamma_self
     }
     /// Voigt damping parameter a = Γ/(4π Δν_D).
     pub fn damping_parameter(&self) -> f64 {
@@ -97,8 +111,18 @@ pub fn widths(
         }
         _ => classical_damping(line.wavelength_vac),
     };
+    // Self-broadening of H I lines; where it comes from cross-sections that include the
+    // van der Waals interaction, the Unsöld estimate is not added.
+    let (gamma_self, self_includes_vdw) = match (hydrogenic, line.shells) {
+        (Some(h), Some((lo, up))) if h.z == 1 && charge == 0 => (
+            hydrogen_self_broadening(lo, up, t, gas.neutral_hydrogen),
+            self_broadening_cross_section(lo, up).is_some(),
+        ),
+        _ => (0.0, false),
+    };
     let gamma_vdw = match line.broadening.log_gamma_vdw {
         Some(lg) => 10f64.powf(lg) * gas.neutral_hydrogen * (t / 1e4).powf(0.3),
+        None if self_includes_vdw => 0.0,
         None => unsold_vdw(line, mass_g, ionization_ev, gas),
     };
     let gamma_stark = match line.broadening.log_gamma_stark {
@@ -123,7 +147,82 @@ pub fn widths(
         gamma_rad,
         gamma_vdw,
         gamma_stark,
+        gamma_self,
     }
+}
+
+/// Self-broadening cross-section σ(v₀) (in a₀²) and velocity exponent α of the H I lines
+/// with published values (Barklem, Piskunov & O'Mara 2000, Table 3; from memory).
+pub fn self_broadening_cross_section(n_lo: u32, n_up: u32) -> Option<(f64, f64)> {
+    match (n_lo, n_up) {
+        (2, 3) => Some((1180.0, 0.677)),
+        (2, 4) => Some((2320.0, 0.455)),
+        (2, 5) => Some((4208.0, 0.380)),
+        _ => None,
+    }
+}
+
+/// Self-broadening (FWHM, rad s⁻¹) of the H I line n_lo → n_up by `n_h` ground-state
+/// hydrogen atoms per cm³ at temperature `t`: the cross-section rule for lines that have
+/// one, the resonance rule otherwise (module docs).
+pub fn hydrogen_self_broadening(n_lo: u32, n_up: u32, t: f64, n_h: f64) -> f64 {
+    use std::f64::consts::PI;
+    if let Some((sigma, alpha)) = self_broadening_cross_section(n_lo, n_up) {
+        let mu = 0.5 * 1.008 * AMU;
+        let vbar = (8.0 * K_B * t / (PI * mu)).sqrt();
+        let w = (4.0 / PI).powf(0.5 * alpha)
+            * gamma_fn(2.0 - 0.5 * alpha)
+            * vbar
+            * sigma
+            * crate::constants::A0
+            * crate::constants::A0
+            * (vbar / 1e6).powf(-alpha);
+        return 2.0 * w * n_h;
+    }
+    let h = Hydrogenic::HYDROGEN;
+    // Γ_ℓ = 4πk √(g₁/g_p) e² f₁ℓ/(m_e ω₁ℓ) N_H, g₁ = 2 (1s), g_p = 6 (np).
+    let level = |l: u32, share: f64| {
+        let omega = 2.0 * PI * C * h.wavenumber(1, l);
+        4.0 * PI * 0.96 * (1.0f64 / 3.0).sqrt() * E_CHARGE * E_CHARGE * h.oscillator_strength(1, l)
+            / (M_E * omega)
+            * share
+    };
+    let mut per_atom = 0.0;
+    if n_lo == 1 {
+        per_atom += level(n_up, 1.0);
+    } else {
+        for l in [n_lo, n_up] {
+            per_atom += level(l, 3.0 / f64::from(l * l));
+        }
+    }
+    per_atom * n_h
+}
+
+/// Γ(x) for x > 0 (Lanczos approximation, g = 7, nine coefficients; relative error ~1e-15;
+/// common practice, no source).
+pub fn gamma_fn(x: f64) -> f64 {
+    use std::f64::consts::PI;
+    const G: [f64; 9] = [
+        0.999_999_999_999_809_9,
+        676.520_368_121_885_1,
+        -1_259.139_216_722_402_8,
+        771.323_428_777_653_1,
+        -176.615_029_162_140_6,
+        12.507_343_278_686_905,
+        -0.138_571_095_265_720_12,
+        9.984_369_578_019_572e-6,
+        1.505_632_735_149_311_6e-7,
+    ];
+    if x < 0.5 {
+        return PI / ((PI * x).sin() * gamma_fn(1.0 - x));
+    }
+    let x = x - 1.0;
+    let mut a = G[0];
+    let t = x + 7.5;
+    for (i, &g) in G.iter().enumerate().skip(1) {
+        a += g / (x + i as f64);
+    }
+    (2.0 * PI).sqrt() * t.powf(x + 0.5) * (-t).exp() * a
 }
 
 /// Unsöld's van der Waals width by neutral hydrogen, rad s⁻¹ (0 when the levels lie above
@@ -191,6 +290,65 @@ mod tests {
             w.gamma_rad
         );
         assert!(w.gamma_stark.abs() < 1e-300);
+    }
+
+    #[test]
+    fn gamma_function_values() {
+        // Exact values: Γ(1) = Γ(2) = 1, Γ(1/2) = √π, Γ(5) = 24, Γ(3/2) = √π/2; Γ(4/3) =
+        // 0.892979511569249 (Abramowitz & Stegun 1964, Table 6.1, from memory).
+        let sp = std::f64::consts::PI.sqrt();
+        for (x, want) in [
+            (1.0, 1.0),
+            (2.0, 1.0),
+            (0.5, sp),
+            (5.0, 24.0),
+            (1.5, 0.5 * sp),
+            (4.0 / 3.0, 0.892_979_511_569_249),
+        ] {
+            let got = gamma_fn(x);
+            assert!(
+                (got / want - 1.0).abs() < 1e-13,
+                "Γ({x}) = {got}, want {want}"
+            );
+        }
+    }
+
+    #[test]
+    fn self_broadening_of_balmer_lines() {
+        // Hα at 5000 K from the cross-section rule worked by hand: v̄ = √(8kT/(πμ)) =
+        // 1.4477e6 cm/s for μ = m_H/2; w/N_H = (4/π)^{0.3385} Γ(1.6615) v̄ σ (v̄/v₀)^{−0.677}
+        // = 1.0852 × 0.9019 × 1.4477e6 × 3.3044e-14 × 0.7785 ≈ 3.64e-8 rad s⁻¹ cm³ (half
+        // width), so Γ = 7.3e-8 N_H.
+        let g = hydrogen_self_broadening(2, 3, 5000.0, 1.0);
+        assert!((g / 7.28e-8 - 1.0).abs() < 0.01, "{g:e}");
+        // T^{(1−α)/2} scaling of the cross-section rule.
+        let g2 = hydrogen_self_broadening(2, 3, 10_000.0, 1.0);
+        assert!((g2 / g / 2f64.powf(0.5 * (1.0 - 0.677)) - 1.0).abs() < 1e-12);
+        // Linear in the perturber density.
+        assert!(
+            (hydrogen_self_broadening(2, 4, 6000.0, 1e17)
+                / hydrogen_self_broadening(2, 4, 6000.0, 1e16)
+                - 10.0)
+                .abs()
+                < 1e-12
+        );
+        // Resonance rule for Lyman α by hand: 4π·0.96·√(1/3)·e² f/(m_e ω), f = 0.4164,
+        // ω = 2πc/121.57 nm = 1.5495e16 s⁻¹: 6.96·2.5343e8·0.4164/1.5495e16 ≈ 4.74e-8.
+        let ly = hydrogen_self_broadening(1, 2, 5000.0, 1.0);
+        assert!((ly / 4.74e-8 - 1.0).abs() < 0.01, "{ly:e}");
+        // Lines with cross-sections drop the Unsöld term; others keep it.
+        let cat = Catalogue::embedded();
+        let h = Hydrogenic::HYDROGEN;
+        let ha = widths(
+            cat.get("H-alpha").unwrap(),
+            1.008 * AMU,
+            Some(13.598),
+            0,
+            Some(&h),
+            &gas(),
+        );
+        assert!(ha.gamma_vdw == 0.0 && ha.gamma_self > 0.0);
+        assert!((ha.gamma_self / hydrogen_self_broadening(2, 3, 5800.0, 1e17) - 1.0).abs() < 1e-15);
     }
 
     #[test]
