@@ -90,9 +90,9 @@ pub enum View {
 }
 
 /// A fixed damping law that replaces every line's own broadening rules: the Lorentz width
-/// (FWHM, rad s⁻¹) is Γ = `radiative` + `stark_coefficient` · n_e^{2/3}, no van der Waals or self-broadening
-/// term, and hydrogen lines keep a plain Voigt profile (no linear Stark pattern). Meant for
-/// comparisons with simplified models.
+/// (FWHM, rad s⁻¹) is Γ = `radiative` + `stark_coefficient` · n_e^{2/3}, no van der Waals
+/// or self-broadening term, and hydrogen lines keep a plain Voigt profile (no linear Stark
+/// pattern). Meant for comparisons with simplified models.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct DampingOverride {
     /// Constant part of Γ, rad s⁻¹.
