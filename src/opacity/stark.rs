@@ -786,6 +786,18 @@ fn fourier_h_row(dy: f64, count: usize, r: f64, g: f64) -> Vec<f64> {
     out
 }
 
+/// A table row of `len` values: `value(y, H(y; r, g))` at y = i·dy for i = 0 … len − 3,
+/// stored from index 2 on, and the two entries of y < 0 mirrored (H is even in y).
+fn mirrored_row(dy: f64, len: usize, r: f64, g: f64, value: impl Fn(f64, f64) -> f64) -> Vec<f64> {
+    let mut f = vec![0.0; len];
+    for (i, h) in fourier_h_row(dy, len - 2, r, g).into_iter().enumerate() {
+        f[i + 2] = value(i as f64 * dy, h);
+    }
+    f[0] = f[4];
+    f[1] = f[3];
+    f
+}
+
 /// Large-r corrections T_j(v) = (c_j/π) ∫₀^∞ σ^{3j/2} e^{−σ²/4} cos(vσ) dσ (c₁ = −5/2,
 /// c₂ = 2), so that H(y; r) = G_r(y) + r^{−5/2} T₁(y/r) + r^{−4} T₂(y/r) + O(r^{−11/2}).
 /// With σ = u²: (2c_j/π) ∫ u^{3j+1} e^{−u⁴/4} cos(v u²) du.
@@ -870,16 +882,7 @@ impl GaussTable {
             let nv = self.nv;
             let r = (self.p0 + j as f64 * self.hp).exp();
             let b = (1.0 + r * r).sqrt();
-            let mut f = vec![0.0; nv];
-            for (i, h) in fourier_h_row(b * self.hv, nv - 2, r, 0.0)
-                .into_iter()
-                .enumerate()
-            {
-                f[i + 2] = (b * h).ln();
-            }
-            f[0] = f[4];
-            f[1] = f[3];
-            f
+            mirrored_row(b * self.hv, nv, r, 0.0, |_, h| (b * h).ln())
         })
     }
 
@@ -1062,17 +1065,9 @@ impl VoigtTables {
             let b0 = (1.0 + r * r).sqrt();
             let x = X0 * (k as f64 * self.hq).exp_m1();
             let (b, g) = (b0 * (1.0 + x), 2.0 * b0 * x);
-            let mut f = vec![0.0; self.nv];
-            for (i, h) in fourier_h_row(b * self.hv, self.nv - 2, r, g)
-                .into_iter()
-                .enumerate()
-            {
-                let y = i as f64 * b * self.hv;
-                f[i + 2] = (h - unit_voigt(y, r, g)) / wing_scale(y, b);
-            }
-            f[0] = f[4];
-            f[1] = f[3];
-            f
+            mirrored_row(b * self.hv, self.nv, r, g, |y, h| {
+                (h - unit_voigt(y, r, g)) / wing_scale(y, b)
+            })
         })
     }
 
@@ -1080,16 +1075,7 @@ impl VoigtTables {
         self.small[k].get_or_init(|| {
             let x = X0 * (k as f64 * self.hq).exp_m1();
             let (b, g) = (1.0 + x, 2.0 * x);
-            let mut f = vec![0.0; self.nv_small];
-            for (i, h) in fourier_h_row(b * self.hv_small, self.nv_small - 2, 0.0, g)
-                .into_iter()
-                .enumerate()
-            {
-                f[i + 2] = b * h;
-            }
-            f[0] = f[4];
-            f[1] = f[3];
-            f
+            mirrored_row(b * self.hv_small, self.nv_small, 0.0, g, |_, h| b * h)
         })
     }
 }
