@@ -50,7 +50,7 @@ use crate::eos::State;
 use crate::eos::occupation::{LevelCutoff, OccupationModel};
 use crate::opacity::broadening::{self, BroadeningGas, Widths};
 use crate::opacity::continuum::{self, Continuum, ContinuumGas};
-use crate::opacity::stark::StarkProfile;
+use crate::opacity::stark::{ElectronGas, StarkProfile};
 use crate::opacity::voigt::voigt_h;
 use crate::transfer::{quadrature, slab as rt, special};
 
@@ -369,7 +369,7 @@ pub fn setup_line(
     let stark = match (&sp.hydrogenic, line.shells) {
         _ if opts.damping.is_some() => None,
         (Some(h), Some((lo, up))) if lo <= 6 && up <= 30 && widths.doppler_cm > 0.0 => {
-            Some(StarkProfile::new(
+            Some(StarkProfile::with_electrons(
                 lo,
                 up,
                 h.z,
@@ -380,6 +380,11 @@ pub fn setup_line(
                 // FWHM in wavelength, Δλ = λ²Γ/(2πc), on every Stark component.
                 line.wavelength_vac * line.wavelength_vac * widths.gamma()
                     / (2.0 * std::f64::consts::PI * C),
+                // and each component's own electron-impact width
+                Some(ElectronGas {
+                    density: state.electron_density,
+                    temperature: t,
+                }),
             ))
         }
         _ => None,
@@ -509,15 +514,34 @@ impl LineSetup {
         })
     }
 
+    /// Whether the Lorentz wing's coefficient changes along the wing (electron-impact
+    /// widths of a Stark profile), so that the wing is a power law only far out.
+    pub fn varying_wing(&self) -> bool {
+        self.stark
+            .as_ref()
+            .is_some_and(StarkProfile::has_electron_impacts)
+    }
+
     /// Coefficient A of the Lorentz wing τ_line ≈ A/x² far from the core (x in cm).
     pub fn wing_coefficient(&self) -> f64 {
         // H(a, v) → a/(√π v²), v = Δν/Δν_D, Δν ≈ c x/λ₀².
         let dnu_per_x = C / (self.lambda0 * self.lambda0);
         let v_per_x = dnu_per_x / self.widths.doppler_hz;
-        let lorentz = self.kappa_scale * self.thickness * self.a
-            / (std::f64::consts::PI.sqrt() * v_per_x * v_per_x);
-        // Every Stark component carries the Lorentz wing, so all of the line does.
-        lorentz
+        match &self.stark {
+            None => {
+                self.kappa_scale * self.thickness * self.a
+                    / (std::f64::consts::PI.sqrt() * v_per_x * v_per_x)
+            }
+            // Every Stark component carries a Lorentz wing (the common widths and its own
+            // electron-impact width, with its core value: it falls along the wing, which
+            // is then integrated to ten times the reach, `LineScale::with_varying_wing`).
+            Some(sp) => {
+                let per_phi_nu =
+                    self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
+                per_phi_nu * sp.lorentz_wing_coefficient() * self.lambda0 * self.lambda0 / C
+                    * self.thickness
+            }
+        }
     }
 }
 
@@ -719,6 +743,13 @@ pub(crate) fn strengths_of(
         .and_then(|s| s.with_steep_wing(su.stark_wing_coefficient(), 2.5))
         .and_then(|s| s.with_reach(su.reach()))
         .map(|s| s.with_breaks(su.reach_ends()))
+        .map(|s| {
+            if su.varying_wing() {
+                s.with_varying_wing()
+            } else {
+                s
+            }
+        })
         .or_else(|_| quadrature::LineScale::doppler(su.widths.doppler_cm, 0.0))
         .expect("a positive Doppler width");
     // The depths the integral sees, both sides, kept to bracket the half widths.

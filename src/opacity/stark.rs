@@ -64,7 +64,7 @@ use std::collections::BTreeMap;
 use std::f64::consts::PI;
 use std::sync::OnceLock;
 
-use crate::constants::{A0, E_CHARGE, HC};
+use crate::constants::{A0, C, E_CHARGE, HBAR, HC, K_B, M_E};
 use crate::opacity::voigt::voigt_h;
 
 /// Largest lower principal quantum number for which patterns are computed.
@@ -83,6 +83,13 @@ pub struct StarkPattern {
     pub components: Vec<(f64, f64)>,
     /// Relative strength of the unshifted (X = 0) components. `central` + Σ weights = 1.
     pub central: f64,
+    /// Electron-impact factor of each shifted component (same order as `components`): the
+    /// strength-weighted mean over its state pairs u, l of ⟨R²⟩_u + ⟨R²⟩_l − 2⟨R⟩_u·⟨R⟩_l,
+    /// R the dipole operator within each shell, in (a₀/Z)² (the diagonal element of the
+    /// impact operator in the parabolic basis; see [`impact_hwhm`]).
+    pub impact: Vec<f64>,
+    /// The same factor for the unshifted components.
+    pub central_impact: f64,
     /// Total line strength Σ|⟨u|r|l⟩|² over all m of both levels (spin not counted), in units
     /// of (a₀/Z)²; f = (1/3)(1/n_l² − 1/n_u²) S / n_l² for infinite nuclear mass.
     pub strength: f64,
@@ -425,8 +432,20 @@ fn parabolic_states(n: u32, m: u32) -> Vec<Parabolic> {
         .collect()
 }
 
-/// Strengths Σ|d|² by signed X, in (a₀/Z)².
-fn signed_strengths(n_lo: u32, n_up: u32) -> BTreeMap<i64, f64> {
+/// ⟨R²⟩ of the parabolic state |n k m⟩ with R = r restricted to its own shell, in (a₀/Z)²:
+/// inside a shell r = (3/2) n A (A the Runge–Lenz vector in units where A_z = k = n₁ − n₂;
+/// Bethe & Salpeter 1957, §63–67), A² + L² = n² − 1, and in the parabolic basis
+/// |j m₁⟩|j m₂⟩ (j = (n−1)/2, m₁,₂ = (m ± k)/2) A = J₁ − J₂, L = J₁ + J₂ give
+/// ⟨A²⟩ = 2j(j+1) − 2m₁m₂ = (n² − 1 + k² − m²)/2. So ⟨R²⟩ = (9/8) n² (n² − 1 + k² − m²),
+/// whose shell average is (9/8) n²(n² − 1).
+pub(crate) fn shell_r_squared(n: i64, k: i64, m: i64) -> f64 {
+    (9.0 / 8.0 * (n * n * (n * n - 1 + k * k - m * m)) as f64).max(0.0)
+}
+
+/// Strengths Σ|d|² by signed X, in (a₀/Z)², each with the strength-weighted sum of the
+/// electron-impact factor ⟨R²⟩_u + ⟨R²⟩_l − 2⟨R⟩_u·⟨R⟩_l of its state pairs (see
+/// [`shell_r_squared`]; ⟨R⟩ = (0, 0, (3/2) n k) in a parabolic state), in (a₀/Z)⁴.
+fn signed_strengths(n_lo: u32, n_up: u32) -> BTreeMap<i64, (f64, f64)> {
     let (nl, nu) = (n_lo as i64, n_up as i64);
     // Radial integrals R[l′][l] between the shells (only |l′ − l| = 1 is needed).
     let mut rad = vec![vec![0.0; n_lo as usize]; n_up as usize];
@@ -439,7 +458,7 @@ fn signed_strengths(n_lo: u32, n_up: u32) -> BTreeMap<i64, f64> {
     }
     let upper: Vec<Vec<Parabolic>> = (0..n_up).map(|m| parabolic_states(n_up, m)).collect();
     let lower: Vec<Vec<Parabolic>> = (0..n_lo).map(|m| parabolic_states(n_lo, m)).collect();
-    let mut by_x: BTreeMap<i64, f64> = BTreeMap::new();
+    let mut by_x: BTreeMap<i64, (f64, f64)> = BTreeMap::new();
     for mu in -(nu - 1)..=(nu - 1) {
         for ml in (mu - 1)..=(mu + 1) {
             if ml.abs() > nl - 1 {
@@ -470,7 +489,11 @@ fn signed_strengths(n_lo: u32, n_up: u32) -> BTreeMap<i64, f64> {
                         amp += su.coeffs[i] * row;
                     }
                     let x = nu * su.k - nl * sl.k;
-                    *by_x.entry(x).or_insert(0.0) += amp * amp;
+                    let impact = shell_r_squared(nu, su.k, mu) + shell_r_squared(nl, sl.k, ml)
+                        - 4.5 * (nu * su.k * nl * sl.k) as f64;
+                    let e = by_x.entry(x).or_insert((0.0, 0.0));
+                    e.0 += amp * amp;
+                    e.1 += amp * amp * impact;
                 }
             }
         }
@@ -479,21 +502,25 @@ fn signed_strengths(n_lo: u32, n_up: u32) -> BTreeMap<i64, f64> {
 }
 
 fn compute_pattern(n_lo: u32, n_up: u32) -> StarkPattern {
-    let mut by_x: BTreeMap<i64, f64> = BTreeMap::new();
+    let mut by_x: BTreeMap<i64, (f64, f64)> = BTreeMap::new();
     let mut total = 0.0;
-    for (x, s) in signed_strengths(n_lo, n_up) {
+    for (x, (s, si)) in signed_strengths(n_lo, n_up) {
         total += s;
-        *by_x.entry(x.abs()).or_insert(0.0) += s;
+        let e = by_x.entry(x.abs()).or_insert((0.0, 0.0));
+        e.0 += s;
+        e.1 += si;
     }
-    let central = by_x.get(&0).copied().unwrap_or(0.0) / total;
-    let components = by_x
-        .iter()
-        .filter(|(x, _)| **x != 0)
-        .map(|(&x, &s)| (x as f64, s / total))
-        .collect();
+    let (c, ci) = by_x.get(&0).copied().unwrap_or((0.0, 0.0));
+    let mean = |s: f64, si: f64| if s > 0.0 { si / s } else { 0.0 };
+    let shifted = by_x.iter().filter(|(x, _)| **x != 0);
     StarkPattern {
-        components,
-        central,
+        components: shifted
+            .clone()
+            .map(|(&x, &(s, _))| (x as f64, s / total))
+            .collect(),
+        impact: shifted.map(|(_, &(s, si))| mean(s, si)).collect(),
+        central: c / total,
+        central_impact: mean(c, ci),
         strength: total,
     }
 }
@@ -1296,15 +1323,176 @@ struct Component {
     voigt: Option<VoigtStencil>,
 }
 
+/// The electron gas whose collisions broaden every Stark component (impact approximation).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ElectronGas {
+    /// Electron density, cm⁻³.
+    pub density: f64,
+    /// Electron temperature, K.
+    pub temperature: f64,
+}
+
+impl ElectronGas {
+    /// Thermal speed √(2kT/m) used for the impact parameters, cm s⁻¹.
+    fn speed(&self) -> f64 {
+        (2.0 * K_B * self.temperature / M_E).sqrt()
+    }
+
+    /// Debye length √(kT/(4π N e²)) of the electrons, cm.
+    fn debye_length(&self) -> f64 {
+        (K_B * self.temperature / (4.0 * PI * self.density * E_CHARGE * E_CHARGE)).sqrt()
+    }
+
+    /// (4π/3) N (ħ/m)² (2m/πkT)^{1/2}: the impact half width per unit of R² (R in a₀) and of
+    /// the collision factor, rad s⁻¹.
+    fn rate(&self) -> f64 {
+        let hm = HBAR / M_E;
+        4.0 * PI / 3.0 * self.density * hm * hm * (2.0 * M_E / (PI * K_B * self.temperature)).sqrt()
+    }
+}
+
+/// Electron-impact half width (HWHM, rad s⁻¹) of a Stark component with impact factor `r2`
+/// (⟨R²⟩_u + ⟨R²⟩_l − 2⟨R⟩_u·⟨R⟩_l in (a₀/Z)², [`StarkPattern::impact`]) of an ion of nuclear
+/// charge `z`, at angular-frequency offset `domega` from it (0 for the line core):
+/// γ = (4π/3) N (ħ/m)² (2m/πkT)^{1/2} (R²/a₀²) F, the second-order dipole impact width of
+/// weak collisions, ∫2πρ dρ (2/3)(ħR/(m v ρ))², cut off at ρ_min, where that probability
+/// reaches 1 (ρ_min = √(2/3) R ħ/(m v)), and at ρ_max ≈ min(λ_D, v/|Δω|) (Debye screening;
+/// in the wing, collisions slower than 1/Δω act quasi-statically; joined smoothly as
+/// ρ_max = λ_D/√(1 + (Δω λ_D/v)²), common practice, no source), plus strong collisions
+/// πρ_min² inside ρ_min: F = ½ + ln(ρ_max/ρ_min), or ½(ρ_max/ρ_min)² when ρ_max < ρ_min
+/// (strong collisions only, out to ρ_max). Classical straight paths at v = √(2kT/m), no
+/// quenching between shells, no Coulomb focusing by an ionic radiator. (Weak-collision
+/// impact theory, e.g. Griem 1974, *Spectral Line Broadening by Plasmas*, ch. II; the
+/// constants follow from the integral above, not from a table.)
+pub fn impact_hwhm(r2: f64, z: u32, gas: &ElectronGas, domega: f64) -> f64 {
+    if r2 <= 0.0 || gas.density <= 0.0 {
+        return 0.0;
+    }
+    let zz = f64::from(z);
+    let v = gas.speed();
+    let rho_min = (2.0f64 / 3.0).sqrt() * r2.sqrt() / zz * HBAR / (M_E * v);
+    let debye = gas.debye_length();
+    // min(λ_D, v/|Δω|), joined smoothly
+    let rho_max = debye / (1.0 + (domega * debye / v).powi(2)).sqrt();
+    let factor = if rho_max > rho_min {
+        0.5 + (rho_max / rho_min).ln()
+    } else {
+        0.5 * (rho_max / rho_min).powi(2)
+    };
+    gas.rate() * r2 / (zz * zz) * factor
+}
+
+/// The electron-impact part of a profile, for the wing's frequency dependence of the
+/// impact widths ([`impact_hwhm`] at Δω instead of its core value).
+#[derive(Debug, Clone)]
+struct ImpactWing {
+    /// cm of wavelength per rad s⁻¹ at the line: λ²/(2πc).
+    cm_per_omega: f64,
+    /// |Δλ| (cm) of Δω = v/λ_D, so that u = Δω λ_D/v = Δλ/`onset`.
+    onset: f64,
+    /// Per component (the unshifted ones included) with d = λ_D/ρ_min > 1, by descending
+    /// d: d² and the partial sums from the first to this one of I_k γ̂_k, I_k γ̂_k d_k² and
+    /// I_k γ̂_k (½ + ln d_k), γ̂_k = rate R²/Z² (rad s⁻¹) the impact width per unit
+    /// collision factor.
+    parts: Vec<(f64, [f64; 3])>,
+    /// Σ I_k γ̂_k d_k² over the components with d ≤ 1 (strong collisions only in the core).
+    strong_core: f64,
+}
+
+impl ImpactWing {
+    fn new(gas: ElectronGas, z: u32, cm_per_omega: f64, parts: &[(f64, f64)]) -> ImpactWing {
+        let zz = f64::from(z);
+        let v = gas.speed();
+        let debye = gas.debye_length();
+        let rho_unit = (2.0f64 / 3.0).sqrt() / zz * HBAR / (M_E * v);
+        let mut weak: Vec<(f64, f64)> = vec![];
+        let mut strong_core = 0.0;
+        for &(w, r2) in parts.iter().filter(|p| p.0 > 0.0 && p.1 > 0.0) {
+            let (rate, d) = (gas.rate() * r2 / (zz * zz), debye / (rho_unit * r2.sqrt()));
+            if d > 1.0 {
+                weak.push((w * rate, d));
+            } else {
+                strong_core += w * rate * d * d;
+            }
+        }
+        weak.sort_by(|x, y| y.1.total_cmp(&x.1));
+        let mut sums = [0.0; 3];
+        let parts = weak
+            .iter()
+            .map(|&(wr, d)| {
+                sums[0] += wr;
+                sums[1] += wr * d * d;
+                sums[2] += wr * (0.5 + d.ln());
+                (d * d, sums)
+            })
+            .collect();
+        ImpactWing {
+            cm_per_omega,
+            onset: v / debye * cm_per_omega,
+            parts,
+            strong_core,
+        }
+    }
+
+    /// Σ_k I_k (γ_k(Δω) − γ_k(0)) / (π Δλ²), per cm, with γ in wavelength: the change of the
+    /// components' electron Lorentz wings from their core width to the width at their
+    /// offset (an asymptotic form, for |Δλ| well outside each component's own width, where
+    /// that wing is its asymptote; near the core the change is O(u²) and negligible).
+    fn correction(&self, dl: f64) -> f64 {
+        let u2 = (dl / self.onset).powi(2);
+        self.change_per_u2(u2) * self.cm_per_omega / (PI * self.onset * self.onset)
+    }
+
+    /// Σ_k I_k (γ_k(Δω) − γ_k(0)) in wavelength (cm) at Δλ = `dl`.
+    fn change(&self, dl: f64) -> f64 {
+        let u2 = (dl / self.onset).powi(2);
+        self.change_per_u2(u2) * u2 * self.cm_per_omega
+    }
+
+    /// Σ_k I_k (γ_k(u) − γ_k(0))/u² (rad s⁻¹), in closed form per branch of the collision
+    /// factor F (ρ_max = λ_D/√(1 + u²), d = λ_D/ρ_min): d ≤ 1, strong collisions only,
+    /// ΔF = ½d²(1/(1 + u²) − 1); d² > 1 + u², both logarithmic, ΔF = −½ ln(1 + u²); else
+    /// ΔF = ½d²/(1 + u²) − ½ − ln d. The components are sorted by d, so each branch is a
+    /// partial sum.
+    fn change_per_u2(&self, u2: f64) -> f64 {
+        let per = 1.0 / (1.0 + u2);
+        let mut sum = -0.5 * self.strong_core * per;
+        // the components still in the logarithmic branch (d² > 1 + u²) come first
+        let n_log = self.parts.partition_point(|p| p.0 > 1.0 + u2);
+        let head = if n_log > 0 {
+            self.parts[n_log - 1].1
+        } else {
+            [0.0; 3]
+        };
+        if n_log > 0 {
+            let log_per_u2 = if u2 > 0.0 { u2.ln_1p() / u2 } else { 1.0 };
+            sum -= 0.5 * log_per_u2 * head[0];
+        }
+        if let Some(&(_, all)) = self.parts.last() {
+            if n_log < self.parts.len() && u2 > 0.0 {
+                let (s2, s_ln) = (all[1] - head[1], all[2] - head[2]);
+                sum += (0.5 * s2 * per - s_ln) / u2;
+            }
+        }
+        sum
+    }
+}
+
 /// Quasi-static Stark profile of one hydrogen-like line in wavelength, Doppler-convolved,
-/// optionally with an impact Lorentzian.
+/// optionally with a Lorentzian and electron-impact widths on every component.
 #[derive(Debug, Clone)]
 pub struct StarkProfile {
     components: Vec<Component>,
     central: f64,
     doppler: f64,
-    /// Lorentzian half width at half maximum, cm.
+    /// Lorentzian half width at half maximum common to all components, cm.
+    #[cfg_attr(not(test), allow(dead_code))]
     lorentz_hwhm: f64,
+    /// That of the unshifted components: `lorentz_hwhm` plus their electron-impact width.
+    central_hwhm: f64,
+    /// Σ_k I_k γ_k over all components (common and impact HWHM), cm: the Lorentz wing.
+    mean_hwhm: f64,
+    impact: Option<ImpactWing>,
     /// C F₀ for |X| = 1, cm.
     unit_scale: f64,
     wing: f64,
@@ -1328,6 +1516,34 @@ impl StarkProfile {
         doppler_cm: f64,
         lorentz_fwhm_cm: f64,
     ) -> StarkProfile {
+        Self::with_electrons(
+            n_lo,
+            n_up,
+            z,
+            lambda_cm,
+            ion_density,
+            doppler_cm,
+            lorentz_fwhm_cm,
+            None,
+        )
+    }
+
+    /// As [`StarkProfile::new`], and with `electrons` every component also gets its own
+    /// electron-impact Lorentzian ([`impact_hwhm`] of its [`StarkPattern::impact`] factor) in
+    /// the core; beyond the offset where v/|Δω| falls below the Debye length the impact
+    /// width of each component's wing follows its offset ([`impact_hwhm`] at Δω), as a
+    /// correction to the components' Lorentz wings (the profile is kept ≥ 0).
+    #[allow(clippy::too_many_arguments)]
+    pub fn with_electrons(
+        n_lo: u32,
+        n_up: u32,
+        z: u32,
+        lambda_cm: f64,
+        ion_density: f64,
+        doppler_cm: f64,
+        lorentz_fwhm_cm: f64,
+        electrons: Option<ElectronGas>,
+    ) -> StarkProfile {
         assert!(z >= 1, "nuclear charge must be at least 1");
         assert!(
             lambda_cm > 0.0 && lambda_cm.is_finite(),
@@ -1348,29 +1564,52 @@ impl StarkProfile {
         let pat = pattern(n_lo, n_up);
         let unit_scale = 1.5 * E_CHARGE * A0 * lambda_cm * lambda_cm / (f64::from(z) * HC)
             * normal_field(ion_density);
+        let electrons = electrons.filter(|e| e.density > 0.0 && e.temperature > 0.0);
+        let cm_per_omega = lambda_cm * lambda_cm / (2.0 * PI * C);
+        // electron-impact HWHM of the core (rad s⁻¹) for an impact factor
+        let core = |r2: f64| electrons.map_or(0.0, |e| impact_hwhm(r2, z, &e, 0.0));
         let mut central = pat.central;
+        let mut central_core = pat.central * core(pat.central_impact);
+        let mut parts = vec![(pat.central, pat.central_impact, core(pat.central_impact))];
         let mut components = Vec::with_capacity(pat.components.len());
-        for &(x, w) in &pat.components {
+        for (&(x, w), &r2) in pat.components.iter().zip(&pat.impact) {
             let scale = unit_scale * x;
+            let gamma = core(r2);
+            parts.push((w, r2, gamma));
             if scale > 0.0 {
+                let fwhm = lorentz_fwhm_cm + 2.0 * gamma * cm_per_omega;
                 components.push(Component {
                     scale,
                     weight: w,
                     ratio: RatioStencil::new(doppler_cm / scale),
-                    voigt: (lorentz_fwhm_cm > 0.0)
-                        .then(|| VoigtStencil::new(doppler_cm / scale, lorentz_fwhm_cm / scale)),
+                    voigt: (fwhm > 0.0)
+                        .then(|| VoigtStencil::new(doppler_cm / scale, fwhm / scale)),
                 });
             } else {
-                // No field: everything is unshifted.
+                // No field: everything is unshifted (with the strength-weighted width).
                 central += w;
+                central_core += w * gamma;
             }
         }
+        let central_hwhm = 0.5 * lorentz_fwhm_cm
+            + if central > 0.0 {
+                central_core / central * cm_per_omega
+            } else {
+                0.0
+            };
+        let mean_hwhm =
+            0.5 * lorentz_fwhm_cm + parts.iter().map(|p| p.0 * p.2).sum::<f64>() * cm_per_omega;
+        let parts: Vec<(f64, f64)> = parts.iter().map(|p| (p.0, p.1)).collect();
+        let impact = electrons.map(|gas| ImpactWing::new(gas, z, cm_per_omega, &parts));
         let wing = 0.5 * HOLTSMARK_TAIL * pat.wing_moment() * unit_scale.powf(1.5);
         StarkProfile {
             components,
             central,
             doppler: doppler_cm,
             lorentz_hwhm: 0.5 * lorentz_fwhm_cm,
+            central_hwhm,
+            mean_hwhm,
+            impact,
             unit_scale,
             wing,
         }
@@ -1408,8 +1647,12 @@ impl StarkProfile {
     /// Line profile φ(Δλ), per cm, unit area: central·K + φ_S ∗ K with K the Gaussian (or,
     /// with a Lorentzian, the Voigt function). Δλ in cm from the unperturbed line.
     pub fn phi(&self, dlambda_cm: f64) -> f64 {
-        if self.lorentz_hwhm > 0.0 {
-            self.phi_voigt(dlambda_cm)
+        if self.mean_hwhm > 0.0 {
+            let core = self.phi_voigt(dlambda_cm);
+            match &self.impact {
+                Some(e) => (core + e.correction(dlambda_cm)).max(0.0),
+                None => core,
+            }
         } else {
             self.phi_gauss(dlambda_cm)
         }
@@ -1419,7 +1662,7 @@ impl StarkProfile {
     /// Voigt function plus one look-up per shifted component ([`voigt_component`]).
     fn phi_voigt(&self, dl: f64) -> f64 {
         let d = self.doppler;
-        let mut sum = self.central * voigt_h(self.lorentz_hwhm / d, dl / d) / (d * PI.sqrt());
+        let mut sum = self.central * voigt_h(self.central_hwhm / d, dl / d) / (d * PI.sqrt());
         for c in &self.components {
             if let Some(v) = &c.voigt {
                 sum += c.weight * voigt_component(dl / c.scale, v) / c.scale;
@@ -1485,9 +1728,26 @@ impl StarkProfile {
         self.wing
     }
 
-    /// γ/π (γ the Lorentz half width): the Lorentzian's far wing φ → (γ/π) Δλ^{−2}.
+    /// Whether the components carry electron-impact widths (which change along the wing).
+    pub fn has_electron_impacts(&self) -> bool {
+        self.impact
+            .as_ref()
+            .is_some_and(|e| !e.parts.is_empty() || e.strong_core > 0.0)
+    }
+
+    /// Σ_k I_k γ_k/π (γ_k the Lorentz half width of component k, cm, electron impacts with
+    /// their core width): the components' Lorentz wings φ → (Σ I_k γ_k/π) Δλ^{−2}.
     pub fn lorentz_wing_coefficient(&self) -> f64 {
-        self.lorentz_hwhm / PI
+        self.mean_hwhm / PI
+    }
+
+    /// As `lorentz_wing_coefficient`, with the electron-impact widths of the offset
+    /// `dlambda_cm` ([`impact_hwhm`] at Δω): the Lorentz wing's local coefficient there.
+    pub fn lorentz_wing_coefficient_at(&self, dlambda_cm: f64) -> f64 {
+        match &self.impact {
+            Some(e) => self.mean_hwhm / PI + e.change(dlambda_cm) / PI,
+            None => self.mean_hwhm / PI,
+        }
     }
 }
 
@@ -1821,10 +2081,11 @@ mod tests {
         // ±X symmetry of the signed strengths.
         for (nl, nu) in [(1, 2), (2, 3), (2, 4), (3, 7), (4, 11), (6, 30)] {
             let signed = signed_strengths(nl, nu);
-            let scale: f64 = signed.values().sum();
-            for (&x, &s) in &signed {
-                let other = signed.get(&-x).copied().unwrap_or(0.0);
+            let scale: f64 = signed.values().map(|v| v.0).sum();
+            for (&x, &(s, si)) in &signed {
+                let (other, other_i) = signed.get(&-x).copied().unwrap_or((0.0, 0.0));
                 assert!((s - other).abs() < 1e-12 * scale, "{nl}->{nu} X={x}");
+                assert!((si - other_i).abs() < 1e-9 * scale, "{nl}->{nu} X={x}");
             }
         }
     }
@@ -2380,6 +2641,127 @@ mod tests {
             assert!((1.0..1.587).contains(&r), "{ratios:?}");
         }
         assert!(ratios[2] > ratios[0], "{ratios:?}");
+    }
+
+    #[test]
+    fn shell_r_squared_matches_the_dipole_sum() {
+        // Slow twin of `shell_r_squared`: Σ over the shell's |n l′ m′⟩ and the three
+        // polarisations of |⟨n k m|r_q|n l′ m′⟩|², from the parabolic state's coefficients,
+        // the radial integrals and the C¹ angular factors (as the patterns are built).
+        let mut worst: f64 = 0.0;
+        for n in 1u32..=7 {
+            for m in 0..n {
+                for st in parabolic_states(n, m) {
+                    let mut sum = 0.0;
+                    for mp in (m as i64 - 1)..=(m as i64 + 1) {
+                        for lp in mp.unsigned_abs() as u32..n {
+                            let mut amp = 0.0;
+                            for (i, c) in st.coeffs.iter().enumerate() {
+                                let l = m + i as u32;
+                                if l.abs_diff(lp) == 1 {
+                                    amp += c
+                                        * radial_integral(n, lp, n, l)
+                                        * angular(lp as i64, mp, l as i64, m as i64);
+                                }
+                            }
+                            sum += amp * amp;
+                        }
+                    }
+                    let want = shell_r_squared(n as i64, st.k, m as i64);
+                    worst = worst.max((sum - want).abs() / want.max(1.0));
+                }
+            }
+        }
+        assert!(worst < 1e-9, "{worst:e}");
+    }
+
+    #[test]
+    fn impact_wing_follows_the_width_at_each_offset() {
+        // `ImpactWing::change` (closed forms per branch) against Σ I_k (γ_k(Δω) − γ_k(0))
+        // from `impact_hwhm` itself, across the core, the logarithmic wing and the
+        // strong-collision wing, at densities where ρ_min is below and above λ_D.
+        let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
+        let mut worst: f64 = 0.0;
+        for &(nl, nu) in &[(1u32, 2u32), (2, 3), (2, 4), (2, 10), (4, 12)] {
+            for &(ne, t) in &[(1e12, 5e3), (1e15, 1e4), (1e19, 3e4), (1e21, 1e4)] {
+                let lam = h.vacuum_wavelength(nl, nu);
+                let gas = ElectronGas {
+                    density: ne,
+                    temperature: t,
+                };
+                let p = StarkProfile::with_electrons(nl, nu, 1, lam, ne, 1e-9, 0.0, Some(gas));
+                let e = p.impact.as_ref().unwrap();
+                let pat = pattern(nl, nu);
+                let mut parts = vec![(pat.central, pat.central_impact)];
+                parts.extend(
+                    pat.components
+                        .iter()
+                        .zip(&pat.impact)
+                        .map(|(c, &r2)| (c.1, r2)),
+                );
+                for k in -30..=30 {
+                    let dl = e.onset * 10f64.powf(f64::from(k) / 5.0);
+                    let domega = dl / e.cm_per_omega;
+                    let want: f64 = parts
+                        .iter()
+                        .map(|&(w, r2)| {
+                            w * (impact_hwhm(r2, 1, &gas, domega) - impact_hwhm(r2, 1, &gas, 0.0))
+                        })
+                        .sum::<f64>()
+                        * e.cm_per_omega;
+                    let core = p.mean_hwhm;
+                    let got = e.change(dl);
+                    worst = worst.max((got - want).abs() / core);
+                    // and never more than the whole core width is taken away
+                    assert!(got <= 0.0 && got >= -core * (1.0 + 1e-12), "{got} {core}");
+                }
+            }
+        }
+        assert!(worst < 1e-12, "{worst:e}");
+    }
+
+    #[test]
+    fn balmer_widths_with_electron_impacts_against_published_relations() {
+        // The same published fits as above (Gigosos, González & Cardeñoso 2003, from memory:
+        // Hβ w = 4.800 nm (n_e/10¹⁷)^{1/1.4681}, Hα 1.098 nm (n_e/10¹⁷)^{1/1.47135}), now
+        // with the electrons' impact widths on every component (`impact_hwhm`), Doppler
+        // switched off, at 5,000, 10,000 and 20,000 K and n_e = 10¹⁴–10¹⁸ cm⁻³.
+        // Hβ: 1.01–1.24 times the fit. The fits include ion dynamics, which would widen
+        // the static-ion profile further, so this second-order impact treatment (straight
+        // paths, diagonal operator, strong collisions as ½) over-broadens by up to 24 %;
+        // the tolerance is the range reached. Hα: its width comes from ion dynamics at low
+        // density, which are not modelled (0.17–0.45 of the fit at 10¹⁴), and the impact
+        // widths of its unshifted components over-broaden it at high density (1.8 at 10¹⁸).
+        let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
+        let (mut lo_b, mut hi_b) = (f64::INFINITY, 0.0f64);
+        for &t in &[5e3, 1e4, 2e4] {
+            for &ne in &[1e14, 1e15, 1e16, 1e17, 1e18] {
+                let gas = Some(ElectronGas {
+                    density: ne,
+                    temperature: t,
+                });
+                let width = |nu: u32| {
+                    let lam = h.vacuum_wavelength(2, nu);
+                    let unit = StarkProfile::new(2, nu, 1, lam, ne, 1e-20, 0.0).unit_shift();
+                    let p = StarkProfile::with_electrons(2, nu, 1, lam, ne, 1e-4 * unit, 0.0, gas);
+                    fwhm(&p) * 1e7
+                };
+                let (wb, wa) = (width(4), width(3));
+                let rb = wb / (4.8 * (ne / 1e17).powf(1.0 / 1.4681));
+                let ra = wa / (1.098 * (ne / 1e17).powf(1.0 / 1.47135));
+                eprintln!(
+                    "T = {t:.0} K, n_e = {ne:.0e}: Hβ {wb:.4} nm ({rb:.3} of the fit), Hα {wa:.4} nm ({ra:.3})"
+                );
+                (lo_b, hi_b) = (lo_b.min(rb), hi_b.max(rb));
+                if ne >= 1e16 {
+                    assert!((0.6..2.0).contains(&ra), "Hα {ra}");
+                }
+                if ne <= 1e14 {
+                    assert!(ra < 0.5, "Hα {ra}");
+                }
+            }
+        }
+        assert!(lo_b >= 1.0 && hi_b <= 1.25, "Hβ {lo_b}..{hi_b}");
     }
 
     #[test]

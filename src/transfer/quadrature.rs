@@ -48,7 +48,11 @@
 //! on the scale R (for a spectral line, the Planck factors across a tenth of its
 //! wavelength). A damping-wing tail then starts at X = max(min(1000 x_I, R), 10 x_I), and a
 //! wing panel that would run past R starts as two panels split at the geometric middle of
-//! its v range, which resolves the depth's variation near R without bisections.
+//! its v range, which resolves the depth's variation near R without bisections. A wing whose
+//! law still changes out to about R (`with_varying_wing`: electron-impact widths that fall
+//! along the wing) is integrated numerically to X = max(10 R, 10 x_I), damping or steep,
+//! with the wing panel split in two, so that the tail's power law is assumed only where it
+//! holds.
 //!
 //! A line may also have a steeper power-law wing τ ≈ K|x|^{−q} (`with_steep_wing`; the
 //! quasi-static Stark wing has q = 5/2), alone or with the damping wing. It enters the
@@ -223,6 +227,8 @@ pub struct LineScale {
     steep: Option<(f64, f64)>,
     reach: f64,
     breaks: [Option<f64>; 2],
+    /// The wing is a power law only far beyond the reach (see `with_varying_wing`).
+    varying: bool,
 }
 
 impl LineScale {
@@ -243,6 +249,7 @@ impl LineScale {
             steep: None,
             reach: f64::INFINITY,
             breaks: [None, None],
+            varying: false,
         })
     }
 
@@ -306,6 +313,17 @@ impl LineScale {
             return Err(InvalidLineScale::Reach(reach));
         }
         Ok(Self { reach, ..self })
+    }
+
+    /// The same line whose wing law still changes out to about the reach (e.g. a Lorentz
+    /// width that falls along the wing, as electron-impact widths do): its wings, damping or
+    /// steep, are integrated numerically to 10 times the reach (at least 10 wing-panel
+    /// starts) before the analytic tail. Without a finite reach this changes nothing.
+    pub fn with_varying_wing(self) -> Self {
+        Self {
+            varying: true,
+            ..self
+        }
     }
 
     /// The same line whose depth may jump or kink at the distances |x| = `breaks` (e.g. where
@@ -582,11 +600,13 @@ fn plan(scale: &LineScale) -> Plan {
         } * inner;
         // the wing panel would run past the reach (a steep tail keeps its start anyway: its
         // error estimate grows as X shrinks)
-        let split = scale.reach < start;
+        let split = scale.reach < start || (scale.varying && scale.reach.is_finite());
         Plan {
             edge,
             inner,
-            outer: if split && power.is_none() {
+            outer: if scale.varying && scale.reach.is_finite() {
+                (10.0 * scale.reach).max(REACH_MIN * inner)
+            } else if split && power.is_none() {
                 scale.reach.max(REACH_MIN * inner)
             } else {
                 start
