@@ -36,9 +36,11 @@
 //! shifted Stark components follow the Holtsmark distribution of the ion field (ion density
 //! taken equal to n_e) convolved with the Doppler core, and every component, shifted or
 //! not, with the Lorentzian of the radiative, self- and van der Waals widths
-//! ([`crate::opacity::broadening`]). Electron-impact broadening of hydrogen lines is not
-//! included (the cores of lines with unshifted components, e.g. Hα, come out too narrow at
-//! high density).
+//! ([`crate::opacity::broadening`]), plus each component's own electron-impact width
+//! (second-order dipole impact theory with Debye and wing cut-offs,
+//! [`crate::opacity::stark::impact_hwhm`]; its fall along the wing is a correction to the
+//! components' Lorentz wings). Not included: ion dynamics (Hα's core is too narrow at low
+//! density) and the electrons' quasi-static far wing beyond the Weisskopf frequency.
 
 pub mod departures;
 pub mod growth;

@@ -56,9 +56,18 @@
 //! peak against the Fourier integral over r ∈ [0.01, 2e5], x ∈ [1e-6, 2e4]; whole profiles
 //! agree with the Fourier twin to 4e-6 and with a real-space convolution to 1e-6.
 //!
-//! Not included: ion dynamics, electron-impact broadening, quadratic Stark effect, fine
-//! structure, field ionisation, Debye shielding of the ion field, the reduced-mass
-//! correction of a₀.
+//! Electron impacts ([`ElectronGas`], [`impact_hwhm`]): each component n_l k_l m_l → n_u k_u m_u
+//! gets the second-order dipole impact width γ = (4π/3) N (ħ/m)² (2m/πkT)^{1/2} R² F/Z² of
+//! its state pair, R² = ⟨R²⟩_u + ⟨R²⟩_l − 2⟨R⟩_u·⟨R⟩_l, ⟨R²⟩ of a parabolic state in closed
+//! form (9/8) n² (n² − 1 + k² − m²) (a₀/Z)² ([`shell_r_squared`]), F = ½ + ln(ρ_max/ρ_min)
+//! (½(ρ_max/ρ_min)² once ρ_max < ρ_min), ρ_min the Weisskopf radius and ρ_max the Debye
+//! length, shortened to v/Δω in the wing. The off-diagonal (interference) part of the impact
+//! operator is neglected: each component is broadened by its own width.
+//!
+//! Not included: ion dynamics, the electrons' quasi-static far wing beyond the Weisskopf
+//! frequency, Coulomb focusing of the electrons by ionic emitters (He II), quadratic Stark
+//! effect, fine structure, field ionisation, Debye shielding of the ion field, the
+//! reduced-mass correction of a₀.
 
 use std::collections::BTreeMap;
 use std::f64::consts::PI;
@@ -2730,7 +2739,7 @@ mod tests {
         // the static-ion profile further, so this second-order impact treatment (straight
         // paths, diagonal operator, strong collisions as ½) over-broadens by up to 24 %;
         // the tolerance is the range reached. Hα: its width comes from ion dynamics at low
-        // density, which are not modelled (0.17–0.45 of the fit at 10¹⁴), and the impact
+        // density, which are not modelled (0.17–0.30 of the fit at 10¹⁴), and the impact
         // widths of its unshifted components over-broaden it at high density (1.8 at 10¹⁸).
         let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
         let (mut lo_b, mut hi_b) = (f64::INFINITY, 0.0f64);
