@@ -373,6 +373,11 @@ pub fn solve_with(data: &AtomicData, req: &StateRequest) -> std::result::Result<
     };
     // Tabulated partition functions do not depend on the plasma unless levels are cut.
     let debye = req.options.cutoff == LevelCutoff::Debye;
+    // A fixed number of shells does not depend on the plasma either: summed once.
+    let fixed_shells = match req.options.cutoff {
+        LevelCutoff::MaxShell(max_shell) => Some(ShellWeights::MaxShell { max_shell }),
+        _ => None,
+    };
     let mut frac = vec![0.0; n_species];
     let mut y = f64::NAN; // ln n_e of the previous iteration
     let mut n_h: f64;
@@ -392,6 +397,13 @@ pub fn solve_with(data: &AtomicData, req: &StateRequest) -> std::result::Result<
                 };
                 let chi_eff = s.ionization_ev.map(|c| (c - lowering).max(0.0));
                 let new_u = match (&s.hydrogenic, iterations) {
+                    (Some(h), i) if fixed_shells.is_some() => {
+                        if i == 1 {
+                            partition::hydrogenic(h, t, fixed_shells.as_ref().unwrap()).0
+                        } else {
+                            u[k]
+                        }
+                    }
                     // First pass: ground shell only, the perturbers are not yet known.
                     (Some(_), 1) => 2.0,
                     (Some(h), _) => {

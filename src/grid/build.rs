@@ -246,7 +246,7 @@ pub struct BuildReport {
 }
 
 /// Build (or resume) a grid file. `progress(points_done, points_total)` is called after each
-/// pencil is written.
+/// pencil is computed and handed to the writer (which stores them in batches).
 pub fn build(
     plan: &Plan,
     opts: &BuildOptions,
@@ -278,13 +278,35 @@ pub fn build(
     let reused = range.len() - todo.len();
     let len = plan.pencil_len();
     let total = todo.len() * len;
+    // Pencils are stored in batches (`GridWriter::write_pencils`: a block per run of
+    // neighbours, two flushes per batch) of at most a quarter second of work, 256 pencils or
+    // 2²¹ values: what a kill can cost a resumed run.
+    let mut pending: Vec<Pencil> = Vec::new();
+    let mut held = 0usize;
+    let mut since = std::time::Instant::now();
     super::run::run(
         &todo,
         opts.threads,
         |p| compute_pencil(plan, &quantities, p),
-        |pencil| writer.write_pencil(&pencil),
+        |pencil| {
+            if pending.is_empty() {
+                since = std::time::Instant::now();
+            }
+            held += pencil.data.iter().map(Vec::len).sum::<usize>();
+            pending.push(pencil);
+            if held >= 1 << 21
+                || pending.len() >= 256
+                || since.elapsed() >= std::time::Duration::from_millis(250)
+            {
+                writer.write_pencils(&pending)?;
+                pending.clear();
+                held = 0;
+            }
+            Ok::<(), StoreError>(())
+        },
         |n| progress(n * len, total),
     )?;
+    writer.write_pencils(&pending)?;
     let complete = opts.shard.is_none_or(|s| s.count == 1);
     if complete {
         writer.finish()?;

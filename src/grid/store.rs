@@ -1617,10 +1617,128 @@ impl GridWriter {
     /// Stores one pencil: its data, a flush, its `done` flag, a flush. Rewriting a stored pencil
     /// first clears its flag, so a kill during the rewrite cannot leave it flagged but torn.
     pub fn write_pencil(&mut self, p: &Pencil) -> Result<()> {
+        self.write_pencils(std::slice::from_ref(p))
+    }
+
+    /// Stores several pencils at once: all their data (each run of pencils consecutive along
+    /// the last outer axis as one block per dataset), a flush, then their `done` flags, a
+    /// flush — the order of [`GridWriter::write_pencil`], with two flushes for the lot.
+    /// Stored pencils among them first have their flags cleared (and flushed).
+    pub fn write_pencils(&mut self, ps: &[Pencil]) -> Result<()> {
+        if ps.is_empty() {
+            return Ok(());
+        }
+        for p in ps {
+            self.check_pencil(p)?;
+        }
+        let mut order: Vec<&Pencil> = ps.iter().collect();
+        order.sort_by_key(|p| p.index);
+        if let Some(w) = order.windows(2).find(|w| w[0].index == w[1].index) {
+            return Err(StoreError::InvalidPencil {
+                path: self.path.clone(),
+                index: w[0].index,
+                reason: "given twice in one write".into(),
+            });
+        }
         let path_buf = self.path.clone();
         let path = path_buf.as_path();
+        let rewritten: Vec<usize> = ps
+            .iter()
+            .map(|p| p.index)
+            .filter(|&i| self.done_mask[i])
+            .collect();
+        if !rewritten.is_empty() {
+            for &i in &rewritten {
+                self.write_done_flag(i, false)?;
+                self.done_mask[i] = false;
+            }
+            self.file.flush().map_err(h5(path, "/"))?;
+        }
+        let len = self.structure.pencil_len();
+        let n_lines = self.structure.lines.len();
+        let shape = self.structure.shape();
+        let last_outer = shape.len().saturating_sub(2);
+        // Runs: consecutive indices whose outer coordinates differ only in the last one.
+        let mut runs: Vec<&[&Pencil]> = Vec::new();
+        let mut begin = 0;
+        for k in 1..=order.len() {
+            let joins = k < order.len()
+                && order[k].index == order[k - 1].index + 1
+                && shape.len() >= 2
+                && order[k].index % shape[last_outer] != 0;
+            if !joins {
+                runs.push(&order[begin..k]);
+                begin = k;
+            }
+        }
+        for run in &runs {
+            let outer = unravel(run[0].index, &shape);
+            let selection = |tail: &[usize]| {
+                let mut sel: Vec<SliceOrIndex> =
+                    outer.iter().map(|&i| SliceOrIndex::Index(i)).collect();
+                if let Some(last) = sel.last_mut() {
+                    let first = outer[outer.len() - 1];
+                    *last = SliceOrIndex::SliceTo {
+                        start: first,
+                        step: 1,
+                        end: first + run.len(),
+                        block: 1,
+                    };
+                }
+                sel.extend(tail.iter().map(|&n| SliceOrIndex::SliceTo {
+                    start: 0,
+                    step: 1,
+                    end: n,
+                    block: 1,
+                }));
+                Hyperslab::from(sel)
+            };
+            for (k, (meta, ds)) in self.values.iter().enumerate() {
+                let tail: &[usize] = if meta.per_line {
+                    &[len, n_lines]
+                } else {
+                    &[len]
+                };
+                let data: Vec<f64> = if run.len() == 1 {
+                    run[0].data[k].clone()
+                } else {
+                    run.iter().flat_map(|p| p.data[k].iter().copied()).collect()
+                };
+                write_block(ds, selection(tail), &data).map_err(h5(path, &meta.name))?;
+            }
+            let status: Vec<u8> = run.iter().flat_map(|p| p.status.iter().copied()).collect();
+            let status_name = self.structure.status_name().to_string();
+            write_block(&self.status, selection(&[len]), &status)
+                .map_err(h5(path, &status_name))?;
+        }
+        self.file.flush().map_err(h5(path, "/"))?;
+        // The flags, in runs of consecutive pencil numbers.
+        let mut begin = 0;
+        for k in 1..=order.len() {
+            if k == order.len() || order[k].index != order[k - 1].index + 1 {
+                let first = order[begin].index;
+                let n = k - begin;
+                let sel = Hyperslab::from(vec![SliceOrIndex::SliceTo {
+                    start: first,
+                    step: 1,
+                    end: first + n,
+                    block: 1,
+                }]);
+                write_block(&self.done, sel, &vec![1u8; n]).map_err(h5(path, DONE_PATH))?;
+                begin = k;
+            }
+        }
+        self.file.flush().map_err(h5(path, "/"))?;
+        for p in ps {
+            self.done_mask[p.index] = true;
+        }
+        Ok(())
+    }
+
+    /// A pencil's index and data lengths against the layout.
+    fn check_pencil(&self, p: &Pencil) -> Result<()> {
         let bad = |reason: String| StoreError::InvalidPencil {
-            path: path.to_path_buf(),
+            path: self.path.clone(),
             index: p.index,
             reason,
         };
@@ -1653,36 +1771,17 @@ impl GridWriter {
                 )));
             }
         }
-        let outer = unravel(p.index, &self.structure.shape());
-        if self.done_mask[p.index] {
-            self.set_done(p.index, false)?;
-        }
-        for ((meta, ds), data) in self.values.iter().zip(&p.data) {
-            let tail: &[usize] = if meta.per_line {
-                &[len, n_lines]
-            } else {
-                &[len]
-            };
-            write_block(ds, pencil_selection(&outer, tail), data).map_err(h5(path, &meta.name))?;
-        }
-        let status_name = self.structure.status_name().to_string();
-        write_block(&self.status, pencil_selection(&outer, &[len]), &p.status)
-            .map_err(h5(path, &status_name))?;
-        self.file.flush().map_err(h5(path, "/"))?;
-        self.set_done(p.index, true)
+        Ok(())
     }
 
-    fn set_done(&mut self, index: usize, value: bool) -> Result<()> {
-        let path = self.path.as_path();
+    /// Writes one pencil's `done` flag (no flush).
+    fn write_done_flag(&mut self, index: usize, value: bool) -> Result<()> {
         write_block(
             &self.done,
             pencil_selection(&[index], &[]),
             &[u8::from(value)],
         )
-        .map_err(h5(path, DONE_PATH))?;
-        self.file.flush().map_err(h5(path, "/"))?;
-        self.done_mask[index] = value;
-        Ok(())
+        .map_err(h5(self.path.as_path(), DONE_PATH))
     }
 
     /// Marks the file complete (`complete = 1`, the last write), flushes and closes it. Fails
