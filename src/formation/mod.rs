@@ -681,14 +681,17 @@ pub fn line_strength(
             let clear = one_minus_ec == 0.0;
             // One side from e^y, e^{−y} and e^{y_bg}: the same as `intensity_depth`, with
             // the stimulated emission 1 − e^{−y} taken from e^{−y} (y ≥ 0.7 here).
-            let side = |t: f64, ey: f64, inv_ey: f64, ey_bg: f64| {
-                let r = (ey_bg - 1.0) / (ey - 1.0);
-                let d = (1.0 - r) * absorbed(t * (1.0 - inv_ey));
+            // `finish` takes r = S/I_bg and 1 − e^{−τ/μ}.
+            let finish = |r: f64, a: f64| {
+                let d = (1.0 - r) * a;
                 if clear {
                     d
                 } else {
                     d * ec / (ec + r * one_minus_ec)
                 }
+            };
+            let side = |t: f64, ey: f64, inv_ey: f64, ey_bg: f64| {
+                finish((ey_bg - 1.0) / (ey - 1.0), absorbed(t * (1.0 - inv_ey)))
             };
             let pair = |x: f64, tau_even: f64| -> (f64, f64) {
                 let t = tau_even * per_tau;
@@ -698,19 +701,41 @@ pub fn line_strength(
                 // e^{−δ} and e^{−δ_bg} from one division
                 let inv = 1.0 / (ed * ed_bg);
                 let (inv_ed, inv_ed_bg) = (ed_bg * inv, ed * inv);
-                let red_side = side(t, e0 * inv_ed, ed * inv_e0, e0_bg * inv_ed_bg);
                 if x <= su.reach_ends()[0] {
-                    // both sides within the reach: blue = −red
-                    (red_side, side(t, e0 * ed, inv_ed * inv_e0, e0_bg * ed_bg))
+                    // Both sides within the reach: blue = −red. The blue side's optical depth
+                    // exceeds the red one's by Δ = t e^{−y₀}(e^δ − e^{−δ}) ≥ 0 (its stimulated
+                    // emission is weaker), so 1 − e^{−τ_b} = a_r + (1 − a_r)(1 − e^{−Δ})
+                    // without a second exponential where Δ is small, and no cancellation.
+                    let t_red = t * (1.0 - ed * inv_e0);
+                    let a_red = absorbed(t_red);
+                    let gap = t * inv_e0 * (ed - inv_ed);
+                    let a_blue = a_red + (1.0 - a_red) * absorbed(gap);
+                    let (ey_r, ey_b) = (e0 * inv_ed, e0 * ed);
+                    (
+                        finish((e0_bg * inv_ed_bg - 1.0) / (ey_r - 1.0), a_red),
+                        finish((e0_bg * ed_bg - 1.0) / (ey_b - 1.0), a_blue),
+                    )
                 } else {
+                    let red_side = side(t, e0 * inv_ed, ed * inv_e0, e0_bg * inv_ed_bg);
                     // past the red end of the reach: the blue side on its own
                     let delta_b = y0 * blue / su.lambda0;
                     let (eb, eb_bg) = (delta_b.exp(), (delta_b * t_over_tb).exp());
                     (red_side, side(t, e0 / eb, eb * inv_e0, e0_bg / eb_bg))
                 }
             };
+            // One side at signed x (centre and half widths), from the same factors.
+            let single = |x: f64, tau_even: f64| -> f64 {
+                let delta = y0 * su.clamped(x) / su.lambda0;
+                let ey = e0 / exp_near_zero(delta);
+                side(
+                    tau_even * per_tau,
+                    ey,
+                    1.0 / ey,
+                    e0_bg / exp_near_zero(delta * t_over_tb),
+                )
+            };
             Ok(strengths_of(
-                &su, line, profile, pair, absorption, tau_c, fc0,
+                &su, line, single, pair, absorption, tau_c, fc0,
             ))
         }
         None => Ok(strengths_of(
