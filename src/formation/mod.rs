@@ -298,6 +298,8 @@ pub struct LineSetup {
     pub departure_ratio: Option<f64>,
     /// |x| of the red and the blue end of the reach (see `reach_ends`).
     ends: [f64; 2],
+    /// 1/Δλ_D, cm⁻¹: v = x/Δλ_D.
+    per_doppler: f64,
 }
 
 /// Compute the wavelength-independent quantities of a line in a slab.
@@ -401,6 +403,7 @@ pub fn setup_line(
         ],
         lambda0: line.wavelength_vac,
         nu0,
+        per_doppler: 1.0 / widths.doppler_cm,
         widths,
         a,
         kappa_scale,
@@ -505,7 +508,7 @@ impl LineSetup {
         // v = Δν/Δν_D = −x/Δλ_D exactly, so the profile is even in x and its damping wings
         // fall exactly as 1/x² (the analytic tail then holds to infinity).
         match &self.stark {
-            None => self.kappa_scale * voigt_h(self.a, x / self.widths.doppler_cm) * self.thickness,
+            None => self.kappa_scale * voigt_h(self.a, x * self.per_doppler) * self.thickness,
             Some(sp) => {
                 // φ_λ: every component (Holtsmark ⊗ Doppler ⊗ Lorentz, the unshifted ones
                 // Doppler ⊗ Lorentz), per cm.
@@ -793,7 +796,7 @@ fn exp_near_zero(z: f64) -> f64 {
 fn absorbed(tau: f64) -> f64 {
     if tau < 1e-3 {
         // the series to τ⁴: the next term, τ⁵/120, is below 1e-14 τ
-        tau * (1.0 - 0.5 * tau * (1.0 - tau / 3.0 * (1.0 - 0.25 * tau)))
+        tau * (1.0 - 0.5 * tau * (1.0 - tau * (1.0 / 3.0) * (1.0 - 0.25 * tau)))
     } else if tau < 0.7 {
         -(-tau).exp_m1()
     } else {
