@@ -29,10 +29,11 @@
 //!
 //! A *pencil* is all points along the last axis with the other axis indices fixed; pencils are
 //! numbered row-major over all axes but the last. Data variables are chunked one pencil per chunk
-//! (`1, ..., 1, n_last[, n_lines]`), shuffled and deflated. [`GridWriter::write_pencil`] stores
-//! the data, flushes, then sets `done` and flushes again, so a process killed at any moment
-//! leaves a file whose `done` pencils are all fully written; at most the pencil in flight is
-//! lost. Points never written read as NaN (status 255).
+//! (`1, ..., 1, n_last[, n_lines]`), shuffled and deflated. [`GridWriter::write_pencil`] and
+//! [`GridWriter::write_pencils`] (a batch) store the data, flush, then set `done` and flush
+//! again, so a process killed at any moment leaves a file whose `done` pencils are all fully
+//! written; at most the pencils in flight are lost. Points never written read as NaN (status
+//! 255).
 //!
 //! Flushing hands the data to the operating system (`H5Fflush`); it does not `fsync`, so the
 //! guarantee covers a killed process, not a power cut.
