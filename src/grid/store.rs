@@ -1143,7 +1143,22 @@ fn read_done(path: &Path, file: &File) -> Result<Vec<bool>> {
 /// Hyperslab of pencil `outer` (indices of all axes but the last) in a dataset whose trailing
 /// dimensions have sizes `tail` and are taken whole.
 fn pencil_selection(outer: &[usize], tail: &[usize]) -> Hyperslab {
+    run_selection(outer, 1, tail)
+}
+
+/// The selection of `run` pencils from `outer` on along the last outer axis (one pencil:
+/// the outer indices as indices), times the whole `tail`.
+fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Hyperslab {
     let mut sel: Vec<SliceOrIndex> = outer.iter().map(|&i| SliceOrIndex::Index(i)).collect();
+    if let (true, Some(last)) = (run > 1, sel.last_mut()) {
+        let first = outer[outer.len() - 1];
+        *last = SliceOrIndex::SliceTo {
+            start: first,
+            step: 1,
+            end: first + run,
+            block: 1,
+        };
+    }
     sel.extend(tail.iter().map(|&n| SliceOrIndex::SliceTo {
         start: 0,
         step: 1,
@@ -1674,26 +1689,7 @@ impl GridWriter {
         }
         for run in &runs {
             let outer = unravel(run[0].index, &shape);
-            let selection = |tail: &[usize]| {
-                let mut sel: Vec<SliceOrIndex> =
-                    outer.iter().map(|&i| SliceOrIndex::Index(i)).collect();
-                if let Some(last) = sel.last_mut() {
-                    let first = outer[outer.len() - 1];
-                    *last = SliceOrIndex::SliceTo {
-                        start: first,
-                        step: 1,
-                        end: first + run.len(),
-                        block: 1,
-                    };
-                }
-                sel.extend(tail.iter().map(|&n| SliceOrIndex::SliceTo {
-                    start: 0,
-                    step: 1,
-                    end: n,
-                    block: 1,
-                }));
-                Hyperslab::from(sel)
-            };
+            let selection = |tail: &[usize]| run_selection(&outer, run.len(), tail);
             for (k, (meta, ds)) in self.values.iter().enumerate() {
                 let tail: &[usize] = if meta.per_line {
                     &[len, n_lines]
