@@ -766,9 +766,9 @@ fn fourier_h(y: f64, r: f64, g: f64) -> f64 {
 /// rounding, ~1e-9 relative; a third fewer nodes than 12 for the tables' start-up). The factor
 /// u(1 − 1.5u³)e^{−u³ − r²u⁴/4 − g u²/2} is computed once per node, and cos(i·dy·u²) by rotating
 /// e^{i·dy·u²} step by step, re-anchored to a directly computed sin/cos every
-/// `ROW_ANCHOR` steps so that rounding cannot accumulate (≤ 64 steps of ≈ 2ε each).
+/// `ROW_ANCHOR` steps so that rounding cannot accumulate (≤ 256 steps of ≈ 2ε each).
 fn fourier_h_row(dy: f64, count: usize, r: f64, g: f64) -> Vec<f64> {
-    const ROW_ANCHOR: usize = 64;
+    const ROW_ANCHOR: usize = 256;
     let expo = |u: f64| u * u * u + 0.25 * r * r * u.powi(4) + 0.5 * g * u * u;
     let (mut lo, mut hi) = (0.0, 4.0);
     for _ in 0..80 {
@@ -796,7 +796,8 @@ fn fourier_h_row(dy: f64, count: usize, r: f64, g: f64) -> Vec<f64> {
             phase.push(dy * u * u);
         }
     }
-    let step: Vec<(f64, f64)> = phase.iter().map(|t| t.sin_cos()).collect();
+    // the step's sine and cosine as two arrays, so that the rotation below vectorises
+    let (step_s, step_c): (Vec<f64>, Vec<f64>) = phase.iter().map(|t| t.sin_cos()).unzip();
     let mut re = vec![0.0; phase.len()];
     let mut im = vec![0.0; phase.len()];
     let mut out = Vec::with_capacity(count);
@@ -821,7 +822,7 @@ fn fourier_h_row(dy: f64, count: usize, r: f64, g: f64) -> Vec<f64> {
             }
         }
         out.push((acc[0] + acc[1]) + (acc[2] + acc[3]) + rest);
-        for ((c, s), &(ss, cs)) in re.iter_mut().zip(im.iter_mut()).zip(&step) {
+        for (((c, s), &ss), &cs) in re.iter_mut().zip(im.iter_mut()).zip(&step_s).zip(&step_c) {
             let (c0, s0) = (*c, *s);
             *c = c0 * cs - s0 * ss;
             *s = c0 * ss + s0 * cs;
