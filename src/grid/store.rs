@@ -1658,36 +1658,27 @@ impl GridWriter {
         }
         let path_buf = self.path.clone();
         let path = path_buf.as_path();
-        let rewritten: Vec<usize> = ps
+        let mut rewritten: Vec<usize> = order
             .iter()
             .map(|p| p.index)
             .filter(|&i| self.done_mask[i])
             .collect();
         if !rewritten.is_empty() {
-            for &i in &rewritten {
-                self.write_done_flag(i, false)?;
+            self.write_flags(&rewritten, false)?;
+            self.file.flush().map_err(h5(path, "/"))?;
+            for i in rewritten.drain(..) {
                 self.done_mask[i] = false;
             }
-            self.file.flush().map_err(h5(path, "/"))?;
         }
         let len = self.structure.pencil_len();
         let n_lines = self.structure.lines.len();
         let shape = self.structure.shape();
-        let last_outer = shape.len().saturating_sub(2);
+        let row = shape.len().checked_sub(2).map(|d| shape[d]);
+        let status_name = self.structure.status_name().to_string();
         // Runs: consecutive indices whose outer coordinates differ only in the last one.
-        let mut runs: Vec<&[&Pencil]> = Vec::new();
-        let mut begin = 0;
-        for k in 1..=order.len() {
-            let joins = k < order.len()
-                && order[k].index == order[k - 1].index + 1
-                && shape.len() >= 2
-                && order[k].index % shape[last_outer] != 0;
-            if !joins {
-                runs.push(&order[begin..k]);
-                begin = k;
-            }
-        }
-        for run in &runs {
+        let runs =
+            order.chunk_by(|a, b| b.index == a.index + 1 && row.is_some_and(|n| b.index % n != 0));
+        for run in runs {
             let outer = unravel(run[0].index, &shape);
             let selection = |tail: &[usize]| run_selection(&outer, run.len(), tail);
             for (k, (meta, ds)) in self.values.iter().enumerate() {
@@ -1696,38 +1687,25 @@ impl GridWriter {
                 } else {
                     &[len]
                 };
-                let data: Vec<f64> = if run.len() == 1 {
-                    run[0].data[k].clone()
+                let joined: Vec<f64>;
+                let data: &[f64] = if let [one] = run {
+                    &one.data[k]
                 } else {
-                    run.iter().flat_map(|p| p.data[k].iter().copied()).collect()
+                    joined = run.iter().flat_map(|p| p.data[k].iter().copied()).collect();
+                    &joined
                 };
-                write_block(ds, selection(tail), &data).map_err(h5(path, &meta.name))?;
+                write_block(ds, selection(tail), data).map_err(h5(path, &meta.name))?;
             }
             let status: Vec<u8> = run.iter().flat_map(|p| p.status.iter().copied()).collect();
-            let status_name = self.structure.status_name().to_string();
             write_block(&self.status, selection(&[len]), &status)
                 .map_err(h5(path, &status_name))?;
         }
         self.file.flush().map_err(h5(path, "/"))?;
-        // The flags, in runs of consecutive pencil numbers.
-        let mut begin = 0;
-        for k in 1..=order.len() {
-            if k == order.len() || order[k].index != order[k - 1].index + 1 {
-                let first = order[begin].index;
-                let n = k - begin;
-                let sel = Hyperslab::from(vec![SliceOrIndex::SliceTo {
-                    start: first,
-                    step: 1,
-                    end: first + n,
-                    block: 1,
-                }]);
-                write_block(&self.done, sel, &vec![1u8; n]).map_err(h5(path, DONE_PATH))?;
-                begin = k;
-            }
-        }
+        let indices: Vec<usize> = order.iter().map(|p| p.index).collect();
+        self.write_flags(&indices, true)?;
         self.file.flush().map_err(h5(path, "/"))?;
-        for p in ps {
-            self.done_mask[p.index] = true;
+        for i in indices {
+            self.done_mask[i] = true;
         }
         Ok(())
     }
@@ -1771,14 +1749,18 @@ impl GridWriter {
         Ok(())
     }
 
-    /// Writes one pencil's `done` flag (no flush).
-    fn write_done_flag(&mut self, index: usize, value: bool) -> Result<()> {
-        write_block(
-            &self.done,
-            pencil_selection(&[index], &[]),
-            &[u8::from(value)],
-        )
-        .map_err(h5(self.path.as_path(), DONE_PATH))
+    /// Writes the `done` flags of the pencils `sorted` (ascending, distinct) to `value`, one
+    /// block per run of consecutive numbers (no flush).
+    fn write_flags(&mut self, sorted: &[usize], value: bool) -> Result<()> {
+        for run in sorted.chunk_by(|a, b| *b == a + 1) {
+            write_block(
+                &self.done,
+                run_selection(&[run[0]], run.len(), &[]),
+                &vec![u8::from(value); run.len()],
+            )
+            .map_err(h5(self.path.as_path(), DONE_PATH))?;
+        }
+        Ok(())
     }
 
     /// Marks the file complete (`complete = 1`, the last write), flushes and closes it. Fails
