@@ -397,22 +397,18 @@ pub fn solve_with(data: &AtomicData, req: &StateRequest) -> std::result::Result<
                 };
                 let chi_eff = s.ionization_ev.map(|c| (c - lowering).max(0.0));
                 let new_u = match (&s.hydrogenic, iterations) {
-                    (Some(h), i) if fixed_shells.is_some() => {
-                        if i == 1 {
-                            partition::hydrogenic(h, t, fixed_shells.as_ref().unwrap()).0
-                        } else {
-                            u[k]
-                        }
-                    }
-                    // First pass: ground shell only, the perturbers are not yet known.
-                    (Some(_), 1) => 2.0,
+                    // A fixed shell limit: the sum of the first pass holds.
+                    (Some(_), i) if i > 1 && fixed_shells.is_some() => u[k],
+                    // First pass: that sum, or the ground shell only where the cut depends on
+                    // the perturbers, not yet known.
+                    (Some(h), 1) => fixed_shells
+                        .as_ref()
+                        .map_or(2.0, |w| partition::hydrogenic(h, t, w).0),
                     (Some(h), _) => {
                         let w = if debye {
                             ShellWeights::HardCut {
                                 min_binding_cm: lowering * EV / crate::constants::HC,
                             }
-                        } else if let LevelCutoff::MaxShell(max_shell) = req.options.cutoff {
-                            ShellWeights::MaxShell { max_shell }
                         } else {
                             ShellWeights::Occupation(OccupationModel::new(h.z, &perturbers))
                         };
