@@ -679,20 +679,10 @@ pub fn line_strength(
             let (e0, e0_bg) = (y0.exp(), (y0 * t_over_tb).exp());
             let inv_e0 = 1.0 / e0;
             let per_tau = 1.0 / (su.stim0 * mu);
-            // Without continuum opacity along the ray (e^{−τ_c/μ} = 1) the last factor of
-            // `intensity_depth` is 1.
-            let clear = one_minus_ec == 0.0;
             // One side from e^y, e^{−y} and e^{y_bg}: the same as `intensity_depth`, with
             // the stimulated emission 1 − e^{−y} taken from e^{−y} (y ≥ 0.7 here).
             // `finish` takes r = S/I_bg and 1 − e^{−τ/μ}.
-            let finish = |r: f64, a: f64| {
-                let d = (1.0 - r) * a;
-                if clear {
-                    d
-                } else {
-                    d * ec / (ec + r * one_minus_ec)
-                }
-            };
+            let finish = |r: f64, a: f64| depth_behind(r, a, ec, one_minus_ec);
             let side = |t: f64, ey: f64, inv_ey: f64, ey_bg: f64| {
                 finish((ey_bg - 1.0) / (ey - 1.0), absorbed(t * (1.0 - inv_ey)))
             };
@@ -761,7 +751,19 @@ pub fn line_strength(
 fn intensity_depth(em1_y: f64, em1_bg: f64, tau_per_stim: f64, ec: f64, one_minus_ec: f64) -> f64 {
     let r = em1_bg / em1_y;
     let tm = tau_per_stim * em1_y / (em1_y + 1.0);
-    (1.0 - r) * ec * absorbed(tm) / (ec + r * one_minus_ec)
+    depth_behind(r, absorbed(tm), ec, one_minus_ec)
+}
+
+/// The last step of [`intensity_depth`]: (1 − r) e^{−τ_c/μ} a / (e^{−τ_c/μ} + r (1 − e^{−τ_c/μ}))
+/// from r = S/I_bg and a = 1 − e^{−τ/μ}; without continuum along the ray (1 − e^{−τ_c/μ} = 0)
+/// the same value, (1 − r) a, without the division.
+#[inline]
+fn depth_behind(r: f64, a: f64, ec: f64, one_minus_ec: f64) -> f64 {
+    if one_minus_ec == 0.0 {
+        (1.0 - r) * a
+    } else {
+        (1.0 - r) * ec * a / (ec + r * one_minus_ec)
+    }
 }
 
 /// e^z, by its Taylor series to z⁷ where |z| < 1/32 (the next term, z⁸/8!, is below
