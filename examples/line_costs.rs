@@ -33,6 +33,7 @@ fn main() {
     let (mut t_state, mut t_lines) = (0.0, 0.0);
     let mut evaluations = vec![0usize; lines.len()];
     let mut points = 0usize;
+    let mut counts: std::collections::BTreeMap<usize, usize> = Default::default();
     let start = Instant::now();
     for i in 0..plan.point_count() {
         let inputs = plan.point(i);
@@ -49,6 +50,7 @@ fn main() {
         t_lines += t1.elapsed().as_secs_f64();
         for (e, s) in evaluations.iter_mut().zip(&strengths) {
             *e += s.evaluations;
+            *counts.entry(s.evaluations).or_default() += 1;
         }
         points += 1;
     }
@@ -66,4 +68,12 @@ fn main() {
         "  all lines        mean evaluations {:.1}",
         evaluations.iter().sum::<usize>() as f64 / (n * lines.len().max(1) as f64)
     );
+    let total: usize = counts.values().sum();
+    println!("  evaluations per line: share of lines");
+    for (e, c) in &counts {
+        let share = *c as f64 / total.max(1) as f64;
+        if share >= 0.005 {
+            println!("    {e:6} {:5.1} %", 100.0 * share);
+        }
+    }
 }

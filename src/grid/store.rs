@@ -1140,16 +1140,26 @@ fn read_done(path: &Path, file: &File) -> Result<Vec<bool>> {
     Ok(v.iter().map(|&b| b != 0).collect())
 }
 
+/// A box-shaped selection in a dataset: the hyperslab and the box's extent in every
+/// dimension (1 where the hyperslab takes a single index), which is also the shape given to
+/// the memory space of a read or write, so that HDF5 sees the same shape on both sides and
+/// moves the data block by block instead of element by element.
+struct Block {
+    slab: Hyperslab,
+    shape: Vec<usize>,
+}
+
 /// Hyperslab of pencil `outer` (indices of all axes but the last) in a dataset whose trailing
 /// dimensions have sizes `tail` and are taken whole.
-fn pencil_selection(outer: &[usize], tail: &[usize]) -> Hyperslab {
+fn pencil_selection(outer: &[usize], tail: &[usize]) -> Block {
     run_selection(outer, 1, tail)
 }
 
 /// The selection of `run` pencils from `outer` on along the last outer axis (one pencil:
 /// the outer indices as indices), times the whole `tail`.
-fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Hyperslab {
+fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Block {
     let mut sel: Vec<SliceOrIndex> = outer.iter().map(|&i| SliceOrIndex::Index(i)).collect();
+    let mut shape = vec![1; outer.len()];
     if let (true, Some(last)) = (run > 1, sel.last_mut()) {
         let first = outer[outer.len() - 1];
         *last = SliceOrIndex::SliceTo {
@@ -1158,6 +1168,7 @@ fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Hyperslab {
             end: first + run,
             block: 1,
         };
+        shape[outer.len() - 1] = run;
     }
     sel.extend(tail.iter().map(|&n| SliceOrIndex::SliceTo {
         start: 0,
@@ -1165,22 +1176,26 @@ fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Hyperslab {
         end: n,
         block: 1,
     }));
-    Hyperslab::from(sel)
+    shape.extend_from_slice(tail);
+    Block {
+        slab: Hyperslab::from(sel),
+        shape,
+    }
 }
 
 // hdf5-metno's slice reader and writer take arrays of the ndarray version it was resolved
 // with, which need not be this crate's; these two move plain slices through a hyperslab
 // with `H5Dwrite` / `H5Dread` instead (memory space 1-D, file selection in C order).
 
-/// Writes `data` into the selection `sel` of `ds` (as many elements as selected).
-fn write_block<T: H5Type>(ds: &Dataset, sel: Hyperslab, data: &[T]) -> hdf5::Result<()> {
-    let fspace = ds.space()?.select(sel)?;
+/// Writes `data` into the selection `sel` of `ds` (as many elements as selected, in C order).
+fn write_block<T: H5Type>(ds: &Dataset, sel: Block, data: &[T]) -> hdf5::Result<()> {
+    let fspace = ds.space()?.select(sel.slab)?;
     if fspace.selection_size() != data.len() {
         return Err(hdf5::Error::from(
             "selection size differs from the data length",
         ));
     }
-    let mspace = Dataspace::try_new(data.len())?;
+    let mspace = Dataspace::try_new(sel.shape.as_slice())?;
     let mtype = Datatype::from_type::<T>()?;
     let _lock = hdf5_sys::LOCK.lock();
     // SAFETY: valid ids; `data` holds exactly the selected number of `T` in memory type `mtype`.
@@ -1202,11 +1217,11 @@ fn write_block<T: H5Type>(ds: &Dataset, sel: Hyperslab, data: &[T]) -> hdf5::Res
 }
 
 /// Reads the selection `sel` of `ds` in C order.
-fn read_block<T: H5Type + Copy + Default>(ds: &Dataset, sel: Hyperslab) -> hdf5::Result<Vec<T>> {
-    let fspace = ds.space()?.select(sel)?;
+fn read_block<T: H5Type + Copy + Default>(ds: &Dataset, sel: Block) -> hdf5::Result<Vec<T>> {
+    let fspace = ds.space()?.select(sel.slab)?;
     let n = fspace.selection_size();
     let mut out = vec![T::default(); n];
-    let mspace = Dataspace::try_new(n)?;
+    let mspace = Dataspace::try_new(sel.shape.as_slice())?;
     let mtype = Datatype::from_type::<T>()?;
     let _lock = hdf5_sys::LOCK.lock();
     // SAFETY: valid ids; `out` has room for exactly the selected number of `T`.
