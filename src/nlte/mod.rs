@@ -475,6 +475,62 @@ pub fn solve(inp: &CrInput, opts: &CrOptions) -> Result<CrSolution, CrError> {
     solve_with(&Model::new(opts.levels), inp, opts)
 }
 
+/// The smallest relaxation of the escape iteration (in ln β).
+const RELAX_FLOOR: f64 = 0.05;
+
+/// A line at the edge of inversion, in an escape iteration that has stalled at the smallest
+/// relaxation: its τ swings between large positive and negative values for a small change
+/// of β, so that its fixed point lies where τ(β) is too steep for any relaxation. As
+/// β ↦ β(τ(β)) is decreasing, a target above β puts the fixed point above it and one below
+/// puts it below; once τ has changed sign twice (from the stall on), the line keeps that
+/// bracket and halves it geometrically whenever the relaxed step would leave it. A bracket
+/// shrunk to rounding is dropped (the rest of the atom may have moved the fixed point).
+#[derive(Debug, Clone, Copy)]
+struct InversionEdge {
+    sign: f64,
+    flips: u32,
+    lo: f64,
+    hi: f64,
+}
+
+impl Default for InversionEdge {
+    fn default() -> Self {
+        Self {
+            sign: 0.0,
+            flips: 0,
+            lo: 0.0,
+            hi: f64::INFINITY,
+        }
+    }
+}
+
+impl InversionEdge {
+    /// The next β of a line given its optical depth, its present β, the target β(τ) and the
+    /// relaxed step.
+    fn step(&mut self, tau: f64, old: f64, target: f64, relaxed: f64) -> f64 {
+        if self.sign * tau < 0.0 {
+            self.flips += 1;
+        }
+        self.sign = tau.signum();
+        if self.flips < 2 {
+            return relaxed;
+        }
+        if self.hi <= self.lo * (1.0 + 1e-12) {
+            (self.lo, self.hi) = (0.0, f64::INFINITY);
+        }
+        if target > old {
+            self.lo = self.lo.max(old);
+        } else if target < old {
+            self.hi = self.hi.min(old);
+        }
+        if self.lo > 0.0 && self.hi.is_finite() && !(relaxed > self.lo && relaxed < self.hi) {
+            (self.lo * self.hi).sqrt()
+        } else {
+            relaxed
+        }
+    }
+}
+
 /// Reusable work space of the linear solve.
 struct Work {
     m: Vec<f64>,
@@ -506,6 +562,7 @@ pub fn solve_with(model: &Model, inp: &CrInput, opts: &CrOptions) -> Result<CrSo
     };
     let w = |i: usize| inp.occupation.as_ref().map_or(1.0, |w| w[i]);
     let mut beta = vec![1.0; n * n];
+    let mut edges = vec![InversionEdge::default(); n * n];
     if opts.case_b {
         // Lyman lines sit at [l = 0, u].
         beta[1..n].iter_mut().for_each(|b| *b = 0.0);
@@ -550,14 +607,19 @@ pub fn solve_with(model: &Model, inp: &CrInput, opts: &CrOptions) -> Result<CrSo
                     }
                     let net = pops[l] * w(u) / w(l) - pops[u] * model.g[l] / model.g[u];
                     let tau = r.kappa[l * n + u] * net * l_cm;
-                    let mut b = slab_escape(tau);
-                    let old = beta[l * n + u];
+                    let target = slab_escape(tau);
+                    let k = l * n + u;
+                    let old = beta[k];
+                    let mut b = target;
                     if relax < 1.0 && old > 0.0 && b > 0.0 {
                         // Under-relaxed in ln β once the plain iteration has shown it swings.
                         b = (old.ln() + relax * (b.ln() - old.ln())).exp();
                     }
+                    if relax <= RELAX_FLOOR {
+                        b = edges[k].step(tau, old, target, b);
+                    }
                     beta_change = beta_change.max((b - old).abs() / old.max(b).max(1e-300));
-                    beta[l * n + u] = b;
+                    beta[k] = b;
                 }
             }
         }
@@ -569,7 +631,7 @@ pub fn solve_with(model: &Model, inp: &CrInput, opts: &CrOptions) -> Result<CrSo
         } else if beta_change > 1e-3 {
             stalls += 1;
             if stalls >= 4 {
-                relax = (relax * 0.5).max(0.05);
+                relax = (relax * 0.5).max(RELAX_FLOOR);
                 stalls = 0;
                 best_beta_change = beta_change;
             }
