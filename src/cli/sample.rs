@@ -111,12 +111,7 @@ impl InterpArgs {
         } else if self.no_log_value {
             false
         } else {
-            table
-                .values
-                .iter()
-                .zip(&table.status)
-                .filter(|(v, s)| **s == 0 && v.is_finite())
-                .all(|(v, _)| *v > 0.0)
+            table.all_positive()
         };
         Options {
             log_value,

@@ -322,6 +322,18 @@ pub struct Table {
     pub status_flags: Vec<(u8, String)>,
 }
 
+impl Table {
+    /// Whether every converged, finite node value is positive (so that log10 of the value
+    /// can be interpolated anywhere a stencil is allowed).
+    pub fn all_positive(&self) -> bool {
+        self.values
+            .iter()
+            .zip(&self.status)
+            .filter(|(v, s)| **s == 0 && v.is_finite())
+            .all(|(v, _)| *v > 0.0)
+    }
+}
+
 /// The coordinate an axis is interpolated in.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "lowercase")]
@@ -435,6 +447,8 @@ pub struct Options {
     pub clamp: bool,
 }
 
+/// The plain choices: multilinear, in each axis's default coordinate, on the value itself,
+/// no clamping. The `sample` and `fit` commands start from [`Options::for_table`] instead.
 impl Default for Options {
     fn default() -> Options {
         Options {
@@ -442,6 +456,20 @@ impl Default for Options {
             coords: None,
             log_value: false,
             clamp: false,
+        }
+    }
+}
+
+impl Options {
+    /// The defaults of the `sample` and `fit` commands for one table, so that a program
+    /// using the library gets their numbers: cubic (the smallest errors in `linegrid
+    /// audit`), each axis's default coordinate, log10 of the value exactly when
+    /// [`Table::all_positive`], no clamping.
+    pub fn for_table(table: &Table) -> Options {
+        Options {
+            method: Method::Cubic,
+            log_value: table.all_positive(),
+            ..Options::default()
         }
     }
 }

@@ -646,3 +646,21 @@ fn value_and_evaluate_into_check_their_arguments() {
     let e = ip.value(&[7000.0, 2e6, -0.4]).unwrap_err().to_string();
     assert!(e.contains("gas_pressure = 2000000"), "{e}");
 }
+
+/// `Options::for_table` is what the commands start from: cubic, log10 exactly when every
+/// converged finite value is positive (a non-positive value at a flagged node does not count).
+#[test]
+fn options_for_a_table_follow_the_commands_defaults() {
+    let mut t = table_of(wiggly);
+    let o = Options::for_table(&t);
+    assert_eq!(o.method, Method::Cubic);
+    assert!(o.log_value && !o.clamp && o.coords.is_none());
+    t.values[7] = -1.0;
+    assert!(!Options::for_table(&t).log_value);
+    t.status[7] = 1;
+    assert!(Options::for_table(&t).log_value);
+    t.values[3] = f64::NAN;
+    assert!(Options::for_table(&t).log_value);
+    t.values[4] = 0.0;
+    assert!(!Options::for_table(&t).log_value);
+}
