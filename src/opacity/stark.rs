@@ -2388,8 +2388,7 @@ mod tests {
         for n in [1usize, 15, 16, 17, 100, 333] {
             let weight: Vec<f64> = (0..n).map(|k| (k as f64 * 0.37).sin() + 1.5).collect();
             let phase: Vec<f64> = (0..n).map(|k| 0.01 + 1e-3 * (k * k) as f64).collect();
-            let (step_s, step_c): (Vec<f64>, Vec<f64>) =
-                phase.iter().map(|t| t.sin_cos()).unzip();
+            let (step_s, step_c): (Vec<f64>, Vec<f64>) = phase.iter().map(|t| t.sin_cos()).unzip();
             let count = ROW_ANCHOR + 40;
             let (mut plain, mut wide) = (Vec::new(), Vec::new());
             row_sums(&weight, &phase, &step_s, &step_c, count, &mut plain);
@@ -2407,23 +2406,6 @@ mod tests {
                 .sum();
             assert!((plain[7] - direct).abs() <= 1e-12 * weight.iter().sum::<f64>());
         }
-    }
-
-    #[test]
-    fn table_build_time() {
-        let t0 = std::time::Instant::now();
-        let _ = holtsmark(3.0);
-        let t1 = t0.elapsed();
-        let t = gauss_table();
-        for j in 0..t.np {
-            let _ = t.row(j);
-        }
-        let _ = t.large_r();
-        eprintln!(
-            "tables built: Holtsmark {:.1} ms, Holtsmark (x) Gauss (every row) {:.1} ms",
-            t1.as_secs_f64() * 1e3,
-            t0.elapsed().as_secs_f64() * 1e3
-        );
     }
 
     #[test]
@@ -2876,41 +2858,5 @@ mod tests {
             }
         }
         assert!(lo_b >= 1.0 && hi_b <= 1.25, "Hβ {lo_b}..{hi_b}");
-    }
-
-    #[test]
-    fn phi_cost() {
-        let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
-        for &(nl, nu, ne, lorf) in &[
-            (1u32, 2u32, 1e16, 0.0),
-            (2, 3, 1e16, 0.0),
-            (2, 4, 1e16, 0.0),
-            (2, 4, 1e13, 0.0),
-            (2, 10, 1e16, 0.0),
-            (2, 30, 1e14, 0.0),
-            (6, 30, 1e14, 0.0),
-            (2, 4, 1e16, 1.0),
-        ] {
-            let lam = h.vacuum_wavelength(nl, nu);
-            let dop = hydrogen_doppler(lam, T4);
-            let p = StarkProfile::new(nl, nu, 1, lam, ne, dop, lorf * dop);
-            let w = p.components.last().unwrap().scale + dop;
-            let _ = p.phi(0.1 * w);
-            let n = if lorf > 0.0 { 2000 } else { 20000 };
-            let t0 = std::time::Instant::now();
-            let mut acc = 0.0;
-            for i in 0..n {
-                acc += p.phi((i as f64 / n as f64 - 0.5) * 10.0 * w);
-            }
-            let ns = t0.elapsed().as_secs_f64() * 1e9 / n as f64;
-            let t1 = std::time::Instant::now();
-            let q = StarkProfile::new(nl, nu, 1, lam, ne * 1.01, dop, lorf * dop);
-            let new_ns = t1.elapsed().as_secs_f64() * 1e9;
-            eprintln!(
-                "{nl}->{nu} n_e={ne:.0e} lorentz={lorf}: {} components, phi {ns:.0} ns, new {new_ns:.0} ns ({acc:.3e}, {})",
-                p.components.len(),
-                q.components.len()
-            );
-        }
     }
 }
