@@ -857,27 +857,22 @@ fn row_sums(
         // summed
         let mut acc = [0.0f64; LANES];
         let n_main = weight.len() / LANES * LANES;
-        for (((((w, c), s), ss), cs), _) in weight[..n_main]
+        for ((((w, c), s), ss), cs) in weight[..n_main]
             .chunks_exact(LANES)
             .zip(re[..n_main].chunks_exact_mut(LANES))
             .zip(im[..n_main].chunks_exact_mut(LANES))
             .zip(step_s[..n_main].chunks_exact(LANES))
             .zip(step_c[..n_main].chunks_exact(LANES))
-            .zip(0..)
         {
             for k in 0..LANES {
                 acc[k] += w[k] * c[k];
-                let (c0, s0) = (c[k], s[k]);
-                c[k] = c0 * cs[k] - s0 * ss[k];
-                s[k] = c0 * ss[k] + s0 * cs[k];
+                (c[k], s[k]) = rotated(c[k], s[k], cs[k], ss[k]);
             }
         }
         let mut rest = 0.0;
         for k in n_main..weight.len() {
             rest += weight[k] * re[k];
-            let (c0, s0) = (re[k], im[k]);
-            re[k] = c0 * step_c[k] - s0 * step_s[k];
-            im[k] = c0 * step_s[k] + s0 * step_c[k];
+            (re[k], im[k]) = rotated(re[k], im[k], step_c[k], step_s[k]);
         }
         // pairwise over the partial sums
         let mut width = LANES;
@@ -889,6 +884,12 @@ fn row_sums(
         }
         out.push(acc[0] + rest);
     }
+}
+
+/// (cos, sin) of the sum of two angles from those of each.
+#[inline(always)]
+fn rotated(c: f64, s: f64, step_c: f64, step_s: f64) -> (f64, f64) {
+    (c * step_c - s * step_s, c * step_s + s * step_c)
 }
 
 /// A table row of `len` values: `value(y, H(y; r, g))` at y = i·dy for i = 0 … len − 3,
