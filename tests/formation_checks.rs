@@ -455,3 +455,57 @@ species = ["Li I"]
         ["Ba II 4554", "Li I 6707.8", "Li I 6707.9", "Sr II 4078"]
     );
 }
+
+/// Self- and van der Waals broadening take the ground-state H I density as the perturbers':
+/// in gas hot enough for excited H I to count (14,000 K, 10⁴ dyn cm⁻²) a line's widths
+/// equal those computed for a gas of the n = 1 population, and differ from those for all of
+/// H I (common practice, no source: both broadening theories treat perturbers in their
+/// ground state).
+#[test]
+fn broadening_perturbers_are_ground_state_hydrogen() {
+    use linegrid::constants::AMU;
+    use linegrid::opacity::broadening::{BroadeningGas, widths};
+    let data = AtomicData::embedded();
+    let state = solve(&StateRequest {
+        temperature: 14000.0,
+        density: Density::GasPressure(1e4),
+        composition: Composition::default(),
+        options: EosOptions::default(),
+    })
+    .unwrap();
+    let opts = SlabOptions {
+        geometry: Geometry::HydrogenColumn(1e22),
+        background: Background::Planck(1.2 * 14000.0),
+        microturbulence: 2e5,
+        view: View::Flux,
+        continuum: true,
+        damping: None,
+    };
+    let n1 = state.hydrogen_levels[0].population;
+    let all = state.species[data.species_index("H I").unwrap()].density;
+    assert!(n1 < all * (1.0 - 1e-6), "n_1 {n1:e} vs H I {all:e}");
+    for label in ["Na I D2", "Ca II K", "H-alpha"] {
+        let line = Catalogue::embedded().get(label).unwrap();
+        let su = linegrid::formation::setup_line(data, &state, &opts, line).unwrap();
+        let sp = &data.species[line.species_index.unwrap()];
+        let with = |n_h: f64| {
+            widths(
+                line,
+                data.elements[sp.element].mass_amu * AMU,
+                sp.ionization_ev,
+                sp.charge,
+                sp.hydrogenic.as_ref(),
+                &BroadeningGas {
+                    temperature: state.temperature,
+                    electron_density: state.electron_density,
+                    neutral_hydrogen: n_h,
+                    microturbulence: opts.microturbulence,
+                },
+            )
+        };
+        let (ground, total) = (with(n1), with(all));
+        let pert = |w: &linegrid::opacity::broadening::Widths| w.gamma_vdw + w.gamma_self;
+        assert_eq!(pert(&su.widths), pert(&ground), "{label}");
+        assert!(pert(&total) > pert(&ground), "{label}");
+    }
+}

@@ -339,9 +339,8 @@ pub fn setup_line(
     let gas = BroadeningGas {
         temperature: t,
         electron_density: state.electron_density,
-        neutral_hydrogen: data
-            .species_index("H I")
-            .map_or(0.0, |i| state.species[i].density),
+        // the perturbers of self- and van der Waals broadening: H I in its ground state
+        neutral_hydrogen: state.hydrogen_levels.first().map_or(0.0, |l| l.population),
         microturbulence: opts.microturbulence,
     };
     let mass = data.elements[sp.element].mass_amu * AMU;

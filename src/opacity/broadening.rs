@@ -45,7 +45,8 @@ pub struct BroadeningGas {
     pub temperature: f64,
     /// Electron density, cm⁻³.
     pub electron_density: f64,
-    /// Neutral hydrogen density (all shells), cm⁻³.
+    /// Density of ground-state neutral hydrogen (the perturbers of self- and van der Waals
+    /// broadening), cm⁻³.
     pub neutral_hydrogen: f64,
     /// Microturbulent velocity ξ, cm s⁻¹.
     pub microturbulence: f64,
