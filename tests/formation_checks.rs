@@ -10,22 +10,33 @@ use linegrid::formation::{Background, Geometry, LineStrength, SlabOptions, View,
 use linegrid::grid::plan::Plan;
 use linegrid::grid::spec::Spec;
 
-fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
-    let state = solve(&StateRequest {
+/// The reference mixture at temperature t and a gas pressure of 10⁴ dyn cm⁻².
+fn state_at(t: f64) -> linegrid::eos::State {
+    solve(&StateRequest {
         temperature: t,
         density: Density::GasPressure(1e4),
         composition: Composition::default(),
         options: EosOptions::default(),
     })
-    .unwrap();
-    let opts = SlabOptions {
+    .unwrap()
+}
+
+/// A photosphere-like slab: a hydrogen column of 10²² cm⁻² in front of a Planck background at
+/// 1.2 t, seen in flux, with continuum.
+fn photosphere(t: f64) -> SlabOptions {
+    SlabOptions {
         geometry: Geometry::HydrogenColumn(1e22),
         background: Background::Planck(1.2 * t),
         microturbulence: 2e5,
         view: View::Flux,
         continuum: true,
         damping: None,
-    };
+    }
+}
+
+fn strengths(t: f64, labels: &[&str]) -> Vec<LineStrength> {
+    let state = state_at(t);
+    let opts = photosphere(t);
     let cat = Catalogue::embedded();
     labels
         .iter()
@@ -466,21 +477,8 @@ fn broadening_perturbers_are_ground_state_hydrogen() {
     use linegrid::constants::AMU;
     use linegrid::opacity::broadening::{BroadeningGas, widths};
     let data = AtomicData::embedded();
-    let state = solve(&StateRequest {
-        temperature: 14000.0,
-        density: Density::GasPressure(1e4),
-        composition: Composition::default(),
-        options: EosOptions::default(),
-    })
-    .unwrap();
-    let opts = SlabOptions {
-        geometry: Geometry::HydrogenColumn(1e22),
-        background: Background::Planck(1.2 * 14000.0),
-        microturbulence: 2e5,
-        view: View::Flux,
-        continuum: true,
-        damping: None,
-    };
+    let state = state_at(14000.0);
+    let opts = photosphere(14000.0);
     let n1 = state.hydrogen_levels[0].population;
     let all = state.species[data.species_index("H I").unwrap()].density;
     assert!(n1 < all * (1.0 - 1e-6), "n_1 {n1:e} vs H I {all:e}");
