@@ -1185,7 +1185,8 @@ fn run_selection(outer: &[usize], run: usize, tail: &[usize]) -> Block {
 
 // hdf5-metno's slice reader and writer take arrays of the ndarray version it was resolved
 // with, which need not be this crate's; these two move plain slices through a hyperslab
-// with `H5Dwrite` / `H5Dread` instead (memory space 1-D, file selection in C order).
+// with `H5Dwrite` / `H5Dread` instead (the slice in C order, its memory space shaped as
+// the selected block).
 
 /// Writes `data` into the selection `sel` of `ds` (as many elements as selected, in C order).
 fn write_block<T: H5Type>(ds: &Dataset, sel: Block, data: &[T]) -> hdf5::Result<()> {
