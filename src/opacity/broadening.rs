@@ -29,7 +29,12 @@
 //!   Γ_ℓ = 4πk √(g₁/g_p) e² f₁ℓ/(m_e ω₁ℓ) N_H with k = 0.96 (Ali & Griem 1965, Phys. Rev. 140,
 //!   A1044; 1966, Phys. Rev. 144, 366; constants from memory), weighted by the share 3/ℓ² of
 //!   the shell's states that are p states (1 for the upper shell of a Lyman line, which
-//!   only p states feed), added to Unsöld's van der Waals width.
+//!   only p states feed), added to Unsöld's van der Waals width (with hydrogenic binding
+//!   energies). The Balmer lines above Hγ take that rule times the ratio of the
+//!   cross-section width to the rule's width for Hγ at the same temperature (3.8 at
+//!   5000 K): the rule alone would drop the width by that factor from Hγ to Hδ, so the
+//!   series is continued from its last published member (an extrapolation; common
+//!   practice, no source).
 //!
 //! The linear Stark effect of hydrogen-like lines is in [`crate::opacity::stark`]; these
 //! Lorentz widths are convolved with every one of its components.
@@ -117,7 +122,7 @@ pub fn widths(
     let (gamma_self, self_includes_vdw) = match (hydrogenic, line.shells) {
         (Some(h), Some((lo, up))) if h.z == 1 && charge == 0 => (
             hydrogen_self_broadening(lo, up, t, gas.neutral_hydrogen),
-            self_broadening_cross_section(lo, up).is_some(),
+            self_broadening_includes_vdw(lo, up),
         ),
         _ => (0.0, false),
     };
@@ -163,23 +168,71 @@ pub fn self_broadening_cross_section(n_lo: u32, n_up: u32) -> Option<(f64, f64)>
     }
 }
 
+/// Upper shell of the highest Balmer line with a published cross-section: the higher
+/// Balmer lines are scaled from it (module docs).
+const LAST_TABULATED_BALMER: u32 = 5;
+
+/// Whether the self-broadening width of n_lo → n_up already contains the van der Waals
+/// interaction (so that Unsöld's estimate must not be added to it).
+pub fn self_broadening_includes_vdw(n_lo: u32, n_up: u32) -> bool {
+    self_broadening_cross_section(n_lo, n_up).is_some()
+        || (n_lo == 2 && n_up > LAST_TABULATED_BALMER)
+}
+
 /// Self-broadening (FWHM, rad s⁻¹) of the H I line n_lo → n_up by `n_h` ground-state
 /// hydrogen atoms per cm³ at temperature `t`: the cross-section rule for lines that have
-/// one, the resonance rule otherwise (module docs).
+/// one; for the higher Balmer lines the resonance-plus-Unsöld rule scaled by the ratio of
+/// the cross-section rule to that rule for the last tabulated Balmer line at the same
+/// temperature; the resonance rule alone otherwise (module docs).
 pub fn hydrogen_self_broadening(n_lo: u32, n_up: u32, t: f64, n_h: f64) -> f64 {
-    use std::f64::consts::PI;
-    if let Some((sigma, alpha)) = self_broadening_cross_section(n_lo, n_up) {
-        let mu = 0.5 * 1.008 * AMU;
-        let vbar = (8.0 * K_B * t / (PI * mu)).sqrt();
-        let w = (4.0 / PI).powf(0.5 * alpha)
-            * gamma_fn(2.0 - 0.5 * alpha)
-            * vbar
-            * sigma
-            * crate::constants::A0
-            * crate::constants::A0
-            * (vbar / 1e6).powf(-alpha);
-        return 2.0 * w * n_h;
+    if let Some(width) = cross_section_width(n_lo, n_up, t) {
+        return width * n_h;
     }
+    if n_lo == 2 && n_up > LAST_TABULATED_BALMER {
+        let anchor = LAST_TABULATED_BALMER;
+        let scale = cross_section_width(2, anchor, t).unwrap_or(0.0)
+            / (resonance_width(2, anchor) + hydrogen_unsold_width(2, anchor, t));
+        return scale * (resonance_width(n_lo, n_up) + hydrogen_unsold_width(n_lo, n_up, t)) * n_h;
+    }
+    resonance_width(n_lo, n_up) * n_h
+}
+
+/// Mean relative speed of two hydrogen atoms, √(8kT/(πμ)) with μ = m_H/2, cm s⁻¹.
+fn hydrogen_pair_speed(t: f64) -> f64 {
+    let mu = 0.5 * 1.008 * AMU;
+    (8.0 * K_B * t / (std::f64::consts::PI * mu)).sqrt()
+}
+
+/// Self-broadening per perturber (FWHM, rad s⁻¹ cm³) from the published cross-section of
+/// n_lo → n_up, if there is one.
+fn cross_section_width(n_lo: u32, n_up: u32, t: f64) -> Option<f64> {
+    use std::f64::consts::PI;
+    let (sigma, alpha) = self_broadening_cross_section(n_lo, n_up)?;
+    let vbar = hydrogen_pair_speed(t);
+    let w = (4.0 / PI).powf(0.5 * alpha)
+        * gamma_fn(2.0 - 0.5 * alpha)
+        * vbar
+        * sigma
+        * crate::constants::A0
+        * crate::constants::A0
+        * (vbar / 1e6).powf(-alpha);
+    Some(2.0 * w)
+}
+
+/// Unsöld's van der Waals width per perturber (FWHM, rad s⁻¹ cm³) of the H I line
+/// n_lo → n_up with hydrogenic binding energies (the formula of [`unsold_vdw`]).
+fn hydrogen_unsold_width(n_lo: u32, n_up: u32, t: f64) -> f64 {
+    let h = Hydrogenic::HYDROGEN;
+    let bind = |n: u32| h.binding_wavenumber(n) * HC / EV;
+    let (bl, bu) = (bind(n_lo), bind(n_up));
+    let dc6 = 0.3e-30 * (1.0 / (bu * bu) - 1.0 / (bl * bl));
+    8.08 * dc6.powf(0.4) * hydrogen_pair_speed(t).powf(0.6)
+}
+
+/// Impact resonance width per perturber (FWHM, rad s⁻¹ cm³) of the H I line n_lo → n_up
+/// (module docs).
+fn resonance_width(n_lo: u32, n_up: u32) -> f64 {
+    use std::f64::consts::PI;
     let h = Hydrogenic::HYDROGEN;
     // Γ_ℓ = 4πk √(g₁/g_p) e² f₁ℓ/(m_e ω₁ℓ) N_H, g₁ = 2 (1s), g_p = 6 (np).
     let level = |l: u32, share: f64| {
@@ -196,7 +249,7 @@ pub fn hydrogen_self_broadening(n_lo: u32, n_up: u32, t: f64, n_h: f64) -> f64 {
             per_atom += level(l, 3.0 / f64::from(l * l));
         }
     }
-    per_atom * n_h
+    per_atom
 }
 
 /// Γ(x) for x > 0 (Lanczos approximation, g = 7, nine coefficients; relative error ~1e-15;
@@ -337,6 +390,29 @@ mod tests {
         // ω = 2πc/121.57 nm = 1.5495e16 s⁻¹: 6.96·2.5343e8·0.4164/1.5495e16 ≈ 4.74e-8.
         let ly = hydrogen_self_broadening(1, 2, 5000.0, 1.0);
         assert!((ly / 4.74e-8 - 1.0).abs() < 0.01, "{ly:e}");
+        // The Balmer lines above Hγ continue from Hγ with the rule's own step from line to
+        // line, so the width rises along the whole series without a jump at Hδ (the rule
+        // alone is 3.8× below the cross-section width for Hγ at 5000 K).
+        for t in [3000.0, 5000.0, 10_000.0] {
+            let rule = |up: u32| resonance_width(2, up) + hydrogen_unsold_width(2, up, t);
+            let series: Vec<f64> = (3..=30)
+                .map(|up| hydrogen_self_broadening(2, up, t, 1.0))
+                .collect();
+            assert!(series.windows(2).all(|w| w[1] > w[0]), "{t} K: {series:?}");
+            let step = series[3] / series[2];
+            assert!((step / (rule(6) / rule(5)) - 1.0).abs() < 1e-12, "{t} K");
+            assert!(
+                step > 1.0 && step < series[2] / series[1],
+                "{t} K: Hδ/Hγ {step}"
+            );
+            assert!(self_broadening_includes_vdw(2, 6) && self_broadening_includes_vdw(2, 30));
+        }
+        let jump = cross_section_width(2, 5, 5000.0).unwrap()
+            / (resonance_width(2, 5) + hydrogen_unsold_width(2, 5, 5000.0));
+        assert!((jump - 3.8).abs() < 0.1, "{jump}");
+        // Paschen and Lyman lines keep the resonance rule, with Unsöld's term added by
+        // `widths`.
+        assert!(!self_broadening_includes_vdw(3, 4) && !self_broadening_includes_vdw(1, 2));
         // Lines with cross-sections drop the Unsöld term; others keep it.
         let cat = Catalogue::embedded();
         let h = Hydrogenic::HYDROGEN;
@@ -350,6 +426,27 @@ mod tests {
         );
         assert!(ha.gamma_vdw == 0.0 && ha.gamma_self > 0.0);
         assert!((ha.gamma_self / hydrogen_self_broadening(2, 3, 5800.0, 1e17) - 1.0).abs() < 1e-15);
+        let hd_line = cat.get("H-delta").unwrap();
+        let hd = widths(hd_line, 1.008 * AMU, Some(13.598), 0, Some(&h), &gas());
+        assert!(hd.gamma_vdw == 0.0 && hd.gamma_self > ha.gamma_self);
+        // The hydrogenic Unsöld term is the general one with the catalogue's energies and
+        // the ground state's binding energy as the ionisation energy.
+        let chi = h.binding_wavenumber(1) * HC / EV;
+        let general = unsold_vdw(hd_line, 1.008 * AMU, Some(chi), &gas());
+        let hydrogenic = hydrogen_unsold_width(2, 6, 5800.0) * gas().neutral_hydrogen;
+        assert!(
+            (hydrogenic / general - 1.0).abs() < 1e-12,
+            "{hydrogenic:e} {general:e}"
+        );
+        let pa = widths(
+            cat.get("H I 3-4").unwrap(),
+            1.008 * AMU,
+            Some(13.598),
+            0,
+            Some(&h),
+            &gas(),
+        );
+        assert!(pa.gamma_vdw > 0.0);
     }
 
     #[test]

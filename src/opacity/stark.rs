@@ -2856,4 +2856,5 @@ mod tests {
         }
         assert!(lo_b >= 1.0 && hi_b <= 1.25, "Hβ {lo_b}..{hi_b}");
     }
+
 }
