@@ -507,3 +507,54 @@ fn broadening_perturbers_are_ground_state_hydrogen() {
         assert!(pert(&total) > pert(&ground), "{label}");
     }
 }
+
+#[test]
+fn thin_hydrogen_lines_carry_their_whole_oscillator_strength() {
+    // Optically thin limit (common practice, no source): W = D ∫τ dλ with the depth per unit
+    // optical depth D = 2π(I_bg − S)E₂(τ_c)/F_c at line centre and
+    // ∫τ dλ = (πe²/mc) f N_l (1 − e^{−hν/kT}) λ²/c, whatever the profile: the Stark profiles
+    // with the electrons' impact widths must keep unit area (without their rescaling Hα
+    // falls 3.3e-3 short at 10⁴ K, the others more). The Planck and stimulated-emission
+    // factors vary across the broad lines, hence 1e-3 (reached 3.6e-4, H 2-10 at 15,000 K).
+    use linegrid::constants::{C, HC_OVER_K, PI_E2_OVER_MC};
+    use linegrid::transfer::special::{expn, expn_deficit, planck_nu};
+    let cat = Catalogue::embedded();
+    for &(t, p) in &[(10_000.0, 1e4), (12_000.0, 1e5), (15_000.0, 1e5)] {
+        let state = solve(&StateRequest {
+            temperature: t,
+            density: Density::GasPressure(p),
+            composition: Composition::default(),
+            options: EosOptions::default(),
+        })
+        .unwrap();
+        let opts = SlabOptions {
+            geometry: Geometry::HydrogenColumn(1e12),
+            ..photosphere(t)
+        };
+        for label in ["H-alpha", "H-beta", "H-delta", "H I 2-10", "Pa-alpha"] {
+            let line = cat.get(label).unwrap();
+            let s = line_strength(AtomicData::embedded(), &state, &opts, line).unwrap();
+            assert!(s.tau0 < 1e-2, "{label} at {t} K: τ₀ {}", s.tau0);
+            let lambda = line.wavelength_vac;
+            let nu = C / lambda;
+            let (src, bg) = (planck_nu(nu, t), planck_nu(nu, 1.2 * t));
+            let tc = s.continuum_tau;
+            let fc = 2.0 * std::f64::consts::PI * (bg * expn(3, tc) + src * expn_deficit(3, tc));
+            let depth_per_tau = 2.0 * std::f64::consts::PI * (bg - src) * expn(2, tc) / fc;
+            let stim = -(-HC_OVER_K / (lambda * t)).exp_m1();
+            let tau_area =
+                PI_E2_OVER_MC * line.f_value() * s.lower_column * stim * lambda * lambda / C;
+            let thin = depth_per_tau * tau_area * 1e8;
+            let w = s.equivalent_width.unwrap();
+            let r = w / thin - 1.0;
+            eprintln!(
+                "{label:9} {t} K, n_e {:.2e}: W {w:.4e} Å, thin limit {thin:.4e} Å ({r:+.1e})",
+                state.electron_density
+            );
+            assert!(
+                r.abs() <= 1e-3,
+                "{label} at {t} K: W {w:e} Å, thin limit {thin:e} Å"
+            );
+        }
+    }
+}
