@@ -81,11 +81,7 @@ fn audit_reports_and_a_balmer_line_alone_is_degenerate_in_temperature() {
 
     let grid = Grid::open(&g).unwrap();
     let ip = interps(&grid, &["H-beta", "Ca II K"]);
-    // Hβ's W at 8300 K (7.8 Å) is reached again on the hot side near 11,800 K, well above
-    // the valley of ~6 Å near 12,600 K (where the continuum turns thick); at 8000 K the value
-    // lay within 2 % of that valley, so whether a second exact solution existed hung on
-    // per-cent changes of the wings.
-    let truth = [8300.0, 0.0];
+    let truth = [8000.0, 0.0];
     let y: Vec<f64> = ip
         .iter()
         .map(|m| m.evaluate(&truth).unwrap().value)
@@ -102,7 +98,7 @@ fn audit_reports_and_a_balmer_line_alone_is_degenerate_in_temperature() {
     assert!(one.degenerate, "{one:?}");
     assert!(one.minima.len() >= 2);
     let temps: Vec<f64> = one.minima.iter().map(|m| m.parameters[0]).collect();
-    assert!(temps.iter().any(|t| (t - 8300.0).abs() < 50.0), "{temps:?}");
+    assert!(temps.iter().any(|t| (t - 8000.0).abs() < 50.0), "{temps:?}");
     assert!(temps.iter().any(|t| *t > 10000.0), "{temps:?}");
     // With Ca II K the second solution is rejected.
     let two = fit(
@@ -114,7 +110,7 @@ fn audit_reports_and_a_balmer_line_alone_is_degenerate_in_temperature() {
     );
     assert!(!two.degenerate, "{two:?}");
     assert!(
-        (two.minima[0].parameters[0] - 8300.0).abs() < 50.0,
+        (two.minima[0].parameters[0] - 8000.0).abs() < 50.0,
         "{two:?}"
     );
     assert!(two.minima.len() < 2 || two.minima[1].chi2 - two.minima[0].chi2 > 25.0);

@@ -271,9 +271,7 @@ fn equivalent_widths_match_a_brute_force_sum_over_the_emergent_spectrum() {
         (5000.0, 1e4, "Na I D2"),
         (6000.0, 1e4, "Mg II 4481"),
         (9000.0, 1e3, "H-beta"),
-        // (at 10³ dyn cm⁻² the slow electrons' static wing leaves 1.1e-3 of Hδ's W beyond
-        // the reach)
-        (10000.0, 5e2, "H-delta"),
+        (10000.0, 1e3, "H-delta"),
         (20000.0, 1e4, "He I 5876"),
         (7000.0, 1e3, "H-alpha"),
         (12000.0, 1e2, "H-alpha"),

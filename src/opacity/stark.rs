@@ -66,31 +66,15 @@
 //! along the wing takes area out of the components' Lorentz wings (the collisions slower
 //! than 1/Δω no longer shift the line by Δω but by less, so their share belongs nearer the
 //! core): 0.3 % for Hα and 1.1 % for Hβ at n_e = 10¹⁵ cm⁻³ and 10⁴ K, 8.5 % for Hβ and
-//! 28 % for Hδ at 10¹⁷; the slow electrons' quasi-static profile (below) gives part of it
-//! back (1.9 % for Hβ, 19 % for Hδ at 10¹⁷). The profile is rescaled by
-//! 1/(1 + ∫ change + slow area) so that its area stays 1 (the sum rule: a line's integrated
-//! absorption is fixed by its f-value), which puts the rest back in proportion to the
-//! profile, mostly into the core (common practice, no source; not a unified theory). The
-//! change is tapered inside the line core's width (`ImpactWing::correction`); without
-//! taper, slow electrons and rescaling the area fell short by 12 % for Hβ and 66 % for Hδ
-//! at 10¹⁷ cm⁻³ and 10⁴ K.
+//! 28 % for Hδ at 10¹⁷. The profile is rescaled by 1/(1 + ∫ change) so that its area stays
+//! 1 (the sum rule: a line's integrated absorption is fixed by its f-value), which puts
+//! that share back in proportion to the profile, mostly into the core (common practice, no
+//! source; not a unified theory). The change is tapered inside the line core's width
+//! (`ImpactWing::correction`); without taper and rescaling the area fell short by 12 % for
+//! Hβ and 66 % for Hδ at 10¹⁷ cm⁻³ and 10⁴ K.
 //!
-//! Slow electrons act quasi-statically ([`StarkProfile::with_electrons`]): an electron that
-//! shifts component X by Δω from distance ρ (Δω = (3/2)(ħ/m)|X|/(Zρ²)) acts as a static
-//! field if its passage ρ/v lasts longer than 1/Δω, i.e. if v² < (3/2)ħ|X|Δω/(Zm). The
-//! share of a Maxwellian that slow, P(w) = erf w − (2/√π) w e^{−w²} with w² = Δω/ω_X and
-//! ω_X = 2ZkT/((3/2)ħ|X|) the component's Weisskopf frequency ([`slower_share`]), multiplies
-//! a Holtsmark pair density of the electrons' field (the ions' one: equal densities) for
-//! each component; these are exactly the electrons that ρ_max = v/Δω leaves out of the
-//! impact widths there. Far beyond ω_X the wing is then twice the ions' Holtsmark wing, as
-//! in unified theories (Vidal, Cooper & Smith 1973, ApJS 25, 37; from memory). The area
-//! this adds, Σ_k I_k J(s_k/Δλ_X), J(κ) = ∫ W(y) P(√(κy)) dy one tabulated function, enters
-//! the rescaling. Near the line the static part is small (≤ 1.1e-3 of the profile at its
-//! core width for Hβ at 10¹⁶ cm⁻³) but counted on top of the impact widths, which include
-//! every electron there.
-//!
-//! Not included: ion dynamics, Debye screening of the slow electrons' field, Coulomb
-//! focusing of the electrons by ionic emitters (He II), quadratic Stark
+//! Not included: ion dynamics, the electrons' quasi-static far wing beyond the Weisskopf
+//! frequency, Coulomb focusing of the electrons by ionic emitters (He II), quadratic Stark
 //! effect, fine structure, field ionisation, Debye shielding of the ion field, the
 //! reduced-mass correction of a₀.
 
@@ -740,85 +724,6 @@ fn pair_density(y: f64) -> f64 {
     } else {
         0.5 * holtsmark_abs(a)
     }
-}
-
-/// Share of a Maxwellian's particles slower than w times the thermal speed √(2kT/m):
-/// P(w) = erf w − (2/√π) w e^{−w²}, by its series (4/√π) Σ (−1)ⁿ w^{2n+3}/(n!(2n+3)) below
-/// w = 1 (no cancellation).
-pub fn slower_share(w: f64) -> f64 {
-    if w.is_nan() || w <= 0.0 {
-        return 0.0;
-    }
-    if w >= 1.0 {
-        return crate::transfer::special::erf(w) - 2.0 / PI.sqrt() * w * (-w * w).exp();
-    }
-    let w2 = w * w;
-    let mut term = w2 * w;
-    let mut sum = term / 3.0;
-    for n in 1..40 {
-        term *= -w2 / f64::from(n);
-        let add = term / f64::from(2 * n + 3);
-        sum += add;
-        if add.abs() < 1e-17 * sum {
-            break;
-        }
-    }
-    4.0 / PI.sqrt() * sum
-}
-
-/// Smallest and largest κ of the slow-electron area table; below, the area is < 1e-13
-/// (2.7e-14 at the end), above it is 1 to 1e-12 (6.6e-13 at the end).
-const SLOW_KAPPA_MIN: f64 = 1e-10;
-const SLOW_KAPPA_MAX: f64 = 1e6;
-/// Nodes of that table per decade of κ.
-const SLOW_PER_DECADE: f64 = 32.0;
-
-/// J(κ) = ∫₀^∞ W(y) P(√(κ y)) dy (W the Holtsmark distribution, P [`slower_share`]): the
-/// area of one component's quasi-static electron profile when a field y F₀ counts only the
-/// electrons slower than √(κ y) thermal speeds. Gauss–Legendre panels (8 nodes per ½ in ln
-/// y) from y = 10⁻⁶ to 10⁴ max(1, 1/κ), and the Holtsmark tail (2/3) A y^{−3/2} beyond
-/// (where P = 1).
-fn slow_electron_area_direct(kappa: f64) -> f64 {
-    let (gx, gw) = gl8();
-    let lo = 1e-6f64.ln();
-    let hi = (1e4 * (1.0 / kappa).max(1.0)).ln();
-    let panels = ((hi - lo) / 0.5).ceil();
-    let h = (hi - lo) / panels;
-    let mut sum = 0.0;
-    for i in 0..panels as usize {
-        let (mid, half) = (lo + (i as f64 + 0.5) * h, 0.5 * h);
-        for (&t, &w) in gx.iter().zip(gw) {
-            let y = (mid + half * t).exp();
-            sum += w * half * y * holtsmark_abs(y) * slower_share((kappa * y).sqrt());
-        }
-    }
-    sum + 2.0 / 3.0 * HOLTSMARK_TAIL * (-1.5 * hi).exp()
-}
-
-/// ln J(κ) on a uniform grid in ln κ from [`SLOW_KAPPA_MIN`] to [`SLOW_KAPPA_MAX`].
-fn slow_electron_table() -> &'static Vec<f64> {
-    static T: OnceLock<Vec<f64>> = OnceLock::new();
-    T.get_or_init(|| {
-        let h = std::f64::consts::LN_10 / SLOW_PER_DECADE;
-        let n = ((SLOW_KAPPA_MAX / SLOW_KAPPA_MIN).ln() / h).round() as usize;
-        (0..=n)
-            .map(|i| slow_electron_area_direct(SLOW_KAPPA_MIN * (i as f64 * h).exp()).ln())
-            .collect()
-    })
-}
-
-/// J(κ) ([`slow_electron_area_direct`]) by cubic interpolation of its logarithm.
-fn slow_electron_area(kappa: f64) -> f64 {
-    if kappa.is_nan() || kappa < SLOW_KAPPA_MIN {
-        return 0.0;
-    }
-    if kappa >= SLOW_KAPPA_MAX {
-        return 1.0;
-    }
-    let t = slow_electron_table();
-    let h = std::f64::consts::LN_10 / SLOW_PER_DECADE;
-    let (i, w) = stencil((kappa / SLOW_KAPPA_MIN).ln(), 0.0, h, t.len());
-    (w[0] * t[i] + w[1] * t[i + 1] + w[2] * t[i + 2] + w[3] * t[i + 3]).exp()
 }
 
 /// 8-point Gauss–Legendre rule on [−1, 1] (the table rows' panels).
@@ -1501,9 +1406,6 @@ struct Component {
     ratio: RatioStencil,
     /// With a Lorentzian: its stencil (the Lorentz width in units of `scale`).
     voigt: Option<VoigtStencil>,
-    /// With electrons: 1/Δλ_q (cm⁻¹), Δλ_q the offset at which an electron of thermal speed
-    /// acts quasi-statically on this component (0 without electrons).
-    slow: f64,
 }
 
 /// The electron gas whose collisions broaden every Stark component (impact approximation).
@@ -1717,11 +1619,8 @@ pub struct StarkProfile {
     /// Σ_k I_k γ_k over all components (common and impact HWHM), cm: the Lorentz wing.
     mean_hwhm: f64,
     impact: Option<ImpactWing>,
-    /// 1/(1 + ∫ the impact wings' change dΔλ + the slow electrons' area): restores unit
-    /// area (1 without electrons).
+    /// 1/(1 + ∫ the impact wings' change dΔλ): restores unit area (1 without electrons).
     norm: f64,
-    /// The largest `Component::slow`.
-    slow_max: f64,
     /// C F₀ for |X| = 1, cm.
     unit_scale: f64,
     wing: f64,
@@ -1761,9 +1660,7 @@ impl StarkProfile {
     /// electron-impact Lorentzian ([`impact_hwhm`] of its [`StarkPattern::impact`] factor) in
     /// the core; beyond the offset where v/|Δω| falls below the Debye length the impact
     /// width of each component's wing follows its offset ([`impact_hwhm`] at Δω), as a
-    /// correction to the components' Lorentz wings (the profile is kept ≥ 0); the electrons
-    /// too slow to act as impacts at Δω add their quasi-static profile (module docs); and
-    /// the whole is rescaled to unit area.
+    /// correction to the components' Lorentz wings (the profile is kept ≥ 0).
     #[allow(clippy::too_many_arguments)]
     pub fn with_electrons(
         n_lo: u32,
@@ -1815,10 +1712,6 @@ impl StarkProfile {
                     ratio: RatioStencil::new(doppler_cm / scale),
                     voigt: (fwhm > 0.0)
                         .then(|| VoigtStencil::new(doppler_cm / scale, fwhm / scale)),
-                    // w² = (3/2) ħ |X| Δω/(2 Z kT), Δω = Δλ/cm_per_omega
-                    slow: electrons.map_or(0.0, |e| {
-                        1.5 * HBAR * x / (2.0 * f64::from(z) * K_B * e.temperature * cm_per_omega)
-                    }),
                 });
             } else {
                 // No field: everything is unshifted (with the strength-weighted width).
@@ -1839,19 +1732,7 @@ impl StarkProfile {
         let impact = electrons
             .map(|gas| ImpactWing::new(gas, z, cm_per_omega, &parts, core_width))
             .filter(|e| !e.parts.is_empty() || e.strong_core > 0.0);
-        // the slow electrons' quasi-static share: Σ_k I_k J(s_k/Δλ_q,k)
-        let slow_area = if impact.is_some() {
-            components
-                .iter()
-                .map(|c| c.weight * slow_electron_area(c.scale * c.slow))
-                .sum()
-        } else {
-            0.0
-        };
-        let slow_max = components.iter().map(|c| c.slow).fold(0.0, f64::max);
-        let norm = impact
-            .as_ref()
-            .map_or(1.0, |e| 1.0 / (1.0 + e.integral() + slow_area));
+        let norm = impact.as_ref().map_or(1.0, |e| 1.0 / (1.0 + e.integral()));
         let wing = 0.5 * HOLTSMARK_TAIL * pat.wing_moment() * unit_scale.powf(1.5);
         StarkProfile {
             components,
@@ -1862,7 +1743,6 @@ impl StarkProfile {
             mean_hwhm,
             impact,
             norm,
-            slow_max,
             unit_scale,
             wing,
         }
@@ -1903,33 +1783,12 @@ impl StarkProfile {
         if self.mean_hwhm > 0.0 {
             let core = self.phi_voigt(dlambda_cm);
             match &self.impact {
-                Some(e) => {
-                    let impacts = (core + e.correction(dlambda_cm)).max(0.0);
-                    self.norm * (impacts + self.slow_electrons(dlambda_cm))
-                }
+                Some(e) => self.norm * (core + e.correction(dlambda_cm)).max(0.0),
                 None => core,
             }
         } else {
             self.phi_gauss(dlambda_cm)
         }
-    }
-
-    /// The quasi-static profile of the electrons too slow to act as impacts at Δλ:
-    /// Σ_k I_k Q(Δλ/s_k)/s_k P(√(|Δλ|/Δλ_q,k)) (the Holtsmark pair density of the electrons'
-    /// field, as the ions', times the share of electrons slower than the speed that makes a
-    /// collision producing that shift last longer than 1/Δω; no Doppler or Lorentz
-    /// convolution: it matters only far out). 0 where every w² < 10⁻⁶ (P < 10⁻⁹).
-    fn slow_electrons(&self, dl: f64) -> f64 {
-        let a = dl.abs();
-        if a * self.slow_max < 1e-6 {
-            return 0.0;
-        }
-        self.components
-            .iter()
-            .map(|c| {
-                c.weight * pair_density(a / c.scale) / c.scale * slower_share((a * c.slow).sqrt())
-            })
-            .sum()
     }
 
     /// The profile with the Lorentzian on every component: the central weight times the
@@ -1995,11 +1854,9 @@ impl StarkProfile {
         sum / PI
     }
 
-    /// K such that the ions' Holtsmark wing is K |Δλ|^{−5/2} far from the line:
-    /// K = (A/2) Σ_k I_k (C_k F₀)^{3/2}, A = 1.49603 (times the unit-area factor). With
-    /// electrons the slow ones add as much again beyond the components' Weisskopf
-    /// frequencies (the wing tends to 2K). With a Lorentzian the profile also has the wing
-    /// `lorentz_wing_coefficient()/Δλ²`, which dominates eventually.
+    /// K such that φ → K |Δλ|^{−5/2} far from the line (the Holtsmark wing):
+    /// K = (A/2) Σ_k I_k (C_k F₀)^{3/2}, A = 1.49603. With a Lorentzian the profile also has
+    /// the wing `lorentz_wing_coefficient()/Δλ²`, which dominates eventually.
     pub fn far_wing_coefficient(&self) -> f64 {
         self.norm * self.wing
     }
@@ -3103,80 +2960,5 @@ mod tests {
         // limit the convergence (panels of 2: 2.8e-5; of 1: 4.8e-6; of ½: 7.6e-7, at 2× the
         // cost); 1e-5 of the removed area is ≤ 5e-6 of the profile's.
         assert!(worst_integral < 1e-5, "{worst_integral:e}");
-    }
-
-    #[test]
-    fn slower_share_is_the_maxwellian_fraction() {
-        // Exact values (common practice, no source): P(w) = erf w − (2/√π) w e^{−w²};
-        // P(1) = 0.842700792949715 − 0.415107497420595; dP/dw = (4/√π) w² e^{−w²}; P → 1.
-        assert!((slower_share(1.0) - 0.427_593_295_529_120).abs() < 1e-15);
-        let below = slower_share(1.0 - 1e-12);
-        assert!(
-            (below - slower_share(1.0)).abs() < 1e-11,
-            "series and erf branches meet"
-        );
-        for &w in &[0.05f64, 0.3, 0.9, 1.5, 3.0] {
-            let h = 1e-5 * w;
-            let d = (slower_share(w + h) - slower_share(w - h)) / (2.0 * h);
-            let want = 4.0 / PI.sqrt() * w * w * (-w * w).exp();
-            assert!((d / want - 1.0).abs() < 1e-7, "w = {w}: {d} vs {want}");
-        }
-        assert!((slower_share(10.0) - 1.0).abs() < 1e-15 && slower_share(0.0) == 0.0);
-        // small w: (4/(3√π)) w³
-        let w = 1e-4;
-        assert!((slower_share(w) / (4.0 / (3.0 * PI.sqrt()) * w * w * w) - 1.0).abs() < 1e-8);
-    }
-
-    #[test]
-    fn slow_electron_area_table_matches_its_integral() {
-        // The table of J(κ) against the direct integral between its nodes, and its limits:
-        // J → 1 when every electron is slow, J → 0 when none is.
-        let mut worst: f64 = 0.0;
-        for k in 0..=64 {
-            let kappa = SLOW_KAPPA_MIN * 10f64.powf(0.25 * f64::from(k) + 0.0371);
-            if kappa >= SLOW_KAPPA_MAX {
-                break;
-            }
-            let (got, want) = (slow_electron_area(kappa), slow_electron_area_direct(kappa));
-            worst = worst.max((got / want - 1.0).abs());
-        }
-        assert!(worst < 1e-6, "{worst:e}");
-        eprintln!(
-            "J(κ) table vs integral: worst {worst:.1e}; 1 − J({SLOW_KAPPA_MAX:e}) = {:.1e}, \
-             J({SLOW_KAPPA_MIN:e}) = {:.1e}",
-            1.0 - slow_electron_area_direct(SLOW_KAPPA_MAX),
-            slow_electron_area_direct(SLOW_KAPPA_MIN)
-        );
-        assert!((slow_electron_area_direct(SLOW_KAPPA_MAX) - 1.0).abs() < 1e-9);
-        assert!(slow_electron_area_direct(SLOW_KAPPA_MIN) < 1e-12);
-        assert!(slow_electron_area(1e-20).abs() < 1e-300);
-        assert!((slow_electron_area(1e9) - 1.0).abs() < 1e-15);
-    }
-
-    #[test]
-    fn slow_electrons_double_the_far_wing() {
-        // Far from the line the electrons act quasi-statically as the ions do, so the wing
-        // tends to twice the ions' Holtsmark wing (unified theory: Vidal, Cooper & Smith 1973,
-        // ApJS 25, 37; from memory); near the line they act as impacts, and their static
-        // part adds little (at most 1.1e-3 of the profile at its core width here).
-        let h = crate::atoms::hydrogenic::Hydrogenic::HYDROGEN;
-        for &(nl, nu, ne) in &[(2u32, 3u32, 1e15), (2, 4, 1e16), (2, 6, 1e14), (1, 2, 1e17)] {
-            let lam = h.vacuum_wavelength(nl, nu);
-            let t = 1e4;
-            let dop = hydrogen_doppler(lam, t);
-            let gas = ElectronGas {
-                density: ne,
-                temperature: t,
-            };
-            let p = StarkProfile::with_electrons(nl, nu, 1, lam, ne, dop, 0.0, Some(gas));
-            let k = p.far_wing_coefficient();
-            let smax = p.components.last().unwrap().scale + dop;
-            let x = 1e7 * smax;
-            let ratio = p.phi(x) * x.powf(2.5) / k;
-            assert!((ratio - 2.0).abs() < 1e-4, "{nl}->{nu}: {ratio}");
-            let near = p.slow_electrons(smax) / p.phi(smax);
-            eprintln!("{nl}->{nu}: far ratio {ratio}, slow share at the core width {near:.2e}");
-            assert!(near < 1e-2, "{nl}->{nu} near the line");
-        }
     }
 }
