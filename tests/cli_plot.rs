@@ -267,6 +267,32 @@ fn growth_plot_exports_the_curve_of_growth() {
         assert!(close(num(&r[4]), f("linear")));
         assert!(close(num(&r[5]), f("flat")));
         assert!(close(num(&r[6]), f("damping")));
+        assert!(close(num(&r[7]), f("stark")));
+    }
+    assert_eq!(v["profile"], "voigt");
+    // A hydrogen line goes through its Stark profile and gets the quasi-static asymptote.
+    let hb = [
+        "--line",
+        "H-beta",
+        "--temperature",
+        "9500",
+        "--gas-pressure",
+        "1e4",
+    ];
+    let mut args = vec!["plot", "growth"];
+    args.extend(hb);
+    args.extend(["-o", png.to_str().unwrap(), "--data", csv.to_str().unwrap()]);
+    ok(&args);
+    let mut args = vec!["growth", "--json"];
+    args.extend(hb);
+    let v: serde_json::Value = serde_json::from_slice(&ok(&args).stdout).unwrap();
+    assert_eq!(v["profile"], "stark");
+    let pts = v["points"].as_array().unwrap();
+    let (head, rows) = csv_rows(&csv);
+    assert_eq!(head[7], "w_stark_angstrom");
+    for (r, p) in rows.iter().zip(pts) {
+        let stark = p["stark"].as_f64().unwrap();
+        assert!(stark > 0.0 && close(num(&r[7]), stark));
     }
 }
 

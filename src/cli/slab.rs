@@ -6,7 +6,7 @@ use serde_json::json;
 
 use linegrid::atoms::AtomicData;
 use linegrid::atoms::lines::{Catalogue, Line, Selection, read_csv};
-use linegrid::formation::growth::{GrowthPoint, curve_of_growth};
+use linegrid::formation::growth::{GrowthPoint, line_curve_of_growth};
 use linegrid::formation::{self, Background, Geometry, SlabError, SlabOptions, View};
 use linegrid::transfer::growth::AbsorptionLine;
 
@@ -441,7 +441,7 @@ impl GrowthCurveArgs {
         let cols: Vec<f64> = (0..a.points)
             .map(|i| 10f64.powf(a.min_log_column + step * i as f64))
             .collect();
-        let points = curve_of_growth(&gl, &cols);
+        let points = line_curve_of_growth(&gl, &su, &cols);
         Ok(GrowthCurve {
             line,
             absorption: gl,
@@ -461,38 +461,46 @@ pub fn growth(a: GrowthArgs) -> Result<(), Failure> {
         points: pts,
         ..
     } = a.curve.compute()?;
+    let profile = if pts.iter().any(|p| p.stark.is_some()) {
+        "stark"
+    } else {
+        "voigt"
+    };
     if a.json {
         return print_json(&json!({
             "line": line.label, "wavelength_angstrom": line.wavelength() * 1e8, "f": gl.f_value,
             "doppler_width_angstrom": doppler_cm * 1e8, "damping_parameter": gl.damping_parameter(),
-            "points": pts,
+            "profile": profile, "points": pts,
         }));
     }
     let mut o = String::new();
     outln!(
         o,
-        "# curve of growth: {} ({:.3} A), f = {:.4e}, Doppler width {:.4e} A, a = {:.3e}",
+        "# curve of growth: {} ({:.3} A), f = {:.4e}, Doppler width {:.4e} A, a = {:.3e}, {} profile",
         line.label,
         line.wavelength() * 1e8,
         gl.f_value,
         doppler_cm * 1e8,
-        gl.damping_parameter()
+        gl.damping_parameter(),
+        profile
     );
     outln!(
         o,
-        "log_column,log_nf_lambda,tau0,w_angstrom,w_linear,w_flat,w_damping"
+        "log_column,log_nf_lambda,tau0,w_angstrom,w_linear,w_flat,w_damping,w_stark"
     );
+    let opt = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.6e}"));
     for p in &pts {
         outln!(
             o,
-            "{:.4},{:.4},{:.6e},{:.6e},{:.6e},{},{:.6e}",
+            "{:.4},{:.4},{:.6e},{:.6e},{:.6e},{},{:.6e},{}",
             p.column.log10(),
             p.log_nf_lambda,
             p.tau0,
             p.equivalent_width,
             p.linear,
-            p.flat.map_or(String::new(), |v| format!("{v:.6e}")),
-            p.damping
+            opt(p.flat),
+            p.damping,
+            opt(p.stark)
         );
     }
     emit(&o)

@@ -69,9 +69,11 @@
 //! 28 % for Hδ at 10¹⁷. The profile is rescaled by 1/(1 + ∫ change) so that its area stays
 //! 1 (the sum rule: a line's integrated absorption is fixed by its f-value), which puts
 //! that share back in proportion to the profile, mostly into the core (common practice, no
-//! source; not a unified theory). The change is tapered inside the line core's width
-//! (`ImpactWing::correction`); without taper and rescaling the area fell short by 12 % for
-//! Hβ and 66 % for Hδ at 10¹⁷ cm⁻³ and 10⁴ K.
+//! source; not a unified theory). The ions' quasi-static far wing, exact as it stands, is
+//! scaled with it: by 1.011 for Hβ and 1.056 for Hδ at 10¹⁵ cm⁻³, 1.09 and 1.39 at 10¹⁷.
+//! The change is tapered inside the line core's width (`ImpactWing::correction`); without
+//! taper and rescaling the area fell short by 12 % for Hβ and 66 % for Hδ at 10¹⁷ cm⁻³ and
+//! 10⁴ K.
 //!
 //! Not included: ion dynamics, the electrons' quasi-static far wing beyond the Weisskopf
 //! frequency, Coulomb focusing of the electrons by ionic emitters (He II), quadratic Stark
@@ -1535,8 +1537,8 @@ impl ImpactWing {
     /// of the components' electron Lorentz wings from their core width to the width at
     /// their offset. Far out this is the change of each wing, I_k Δγ_k/(π Δλ²); the w² of
     /// the line's core width (the Lorentzian's own denominator form) keeps the asymptotic
-    /// form from acting inside the core, where it does not hold (common practice, no
-    /// source).
+    /// form from acting inside the core, where it does not hold (our choice, no source: the
+    /// area it moves depends on that width).
     fn correction(&self, dl: f64) -> f64 {
         let u2 = (dl / self.onset).powi(2);
         self.change_per_u2(u2) * self.cm_per_omega / (PI * self.onset * self.onset)
@@ -1778,7 +1780,9 @@ impl StarkProfile {
     }
 
     /// Line profile φ(Δλ), per cm, unit area: central·K + φ_S ∗ K with K the Gaussian (or,
-    /// with a Lorentzian, the Voigt function). Δλ in cm from the unperturbed line.
+    /// with a Lorentzian, the Voigt function); with electrons, plus the change of the
+    /// impact wings along the wing (kept ≥ 0), all times the unit-area factor. Δλ in cm from
+    /// the unperturbed line.
     pub fn phi(&self, dlambda_cm: f64) -> f64 {
         if self.mean_hwhm > 0.0 {
             let core = self.phi_voigt(dlambda_cm);

@@ -405,9 +405,14 @@ pub fn growth_chart(info: &GrowthInfo, points: &[GrowthPoint]) -> LineChart {
         width: if main { 3 } else { 2 },
         sets_range: main,
     };
-    let series = vec![
+    let stark = points.iter().any(|p| p.stark.is_some());
+    let mut series = vec![
         mk(
-            "W_λ (Voigt profile)",
+            if stark {
+                "W_λ (Stark profile)"
+            } else {
+                "W_λ (Voigt profile)"
+            },
             0,
             Dash::Solid,
             points.iter().map(|p| (x(p), p.equivalent_width)).collect(),
@@ -438,6 +443,18 @@ pub fn growth_chart(info: &GrowthInfo, points: &[GrowthPoint]) -> LineChart {
             false,
         ),
     ];
+    if stark {
+        series.push(mk(
+            "quasi-static (ions): 2Γ(3/5) K^{2/5}",
+            4,
+            Dash::Dotted,
+            points
+                .iter()
+                .map(|p| (x(p), p.stark.unwrap_or(f64::NAN)))
+                .collect(),
+            false,
+        ));
+    }
     let (lo, hi) = (points.first().map_or(1.0, x), points.last().map_or(10.0, x));
     let (b1, b2) = growth_regimes(points);
     let mut regions = Vec::new();
@@ -498,7 +515,7 @@ fn sig(v: f64, n: i32) -> f64 {
 /// CSV of a curve of growth.
 pub fn growth_csv(points: &[GrowthPoint]) -> String {
     let mut s = String::from(
-        "column_cm-2,nf_lambda_cm,tau0,w_angstrom,w_linear_angstrom,w_flat_angstrom,w_damping_angstrom\n",
+        "column_cm-2,nf_lambda_cm,tau0,w_angstrom,w_linear_angstrom,w_flat_angstrom,w_damping_angstrom,w_stark_angstrom\n",
     );
     for p in points {
         let row = [
@@ -509,6 +526,7 @@ pub fn growth_csv(points: &[GrowthPoint]) -> String {
             csv_number(p.linear),
             p.flat.map_or(String::new(), csv_number),
             csv_number(p.damping),
+            p.stark.map_or(String::new(), csv_number),
         ];
         s.push_str(&row.join(","));
         s.push('\n');
