@@ -36,7 +36,6 @@ pub struct GrowthPoint {
 
 /// Curve of growth of `line` at the given columns (cm⁻²).
 pub fn curve_of_growth(line: &AbsorptionLine, columns: &[f64]) -> Vec<GrowthPoint> {
-    let lam = line.wavelength;
     let a = line.damping_parameter();
     columns
         .iter()
@@ -50,22 +49,33 @@ pub fn curve_of_growth(line: &AbsorptionLine, columns: &[f64]) -> Vec<GrowthPoin
                 .line_scale(n)
                 .or_else(|_| quadrature::LineScale::doppler(line.doppler_width(), 0.0))
                 .expect("a positive Doppler width");
-            // even depth: fold the two sides into one evaluation
-            let r = quadrature::integrate_folded(|x| -2.0 * (-tau(x)).exp_m1(), &scale, 1e-6);
-            let asy = line.asymptotes(n);
-            GrowthPoint {
-                column: n,
-                log_nf_lambda: (n * line.f_value * lam).log10(),
-                tau0: tau(0.0),
-                equivalent_width: r.value * 1e8,
-                linear: asy.linear * 1e8,
-                flat: asy.flat.is_finite().then_some(asy.flat * 1e8),
-                damping: asy.damping * 1e8,
-                stark: None,
-                evaluations: r.evaluations,
-            }
+            point(line, n, tau, &scale, None)
         })
         .collect()
+}
+
+/// One point: W of the even optical depth `tau` (cm of wavelength) on `scale`, both sides
+/// folded into one evaluation, and `line`'s asymptotes at column `n`.
+fn point(
+    line: &AbsorptionLine,
+    n: f64,
+    tau: impl Fn(f64) -> f64,
+    scale: &quadrature::LineScale,
+    stark: Option<f64>,
+) -> GrowthPoint {
+    let r = quadrature::integrate_folded(|x| -2.0 * (-tau(x)).exp_m1(), scale, 1e-6);
+    let asy = line.asymptotes(n);
+    GrowthPoint {
+        column: n,
+        log_nf_lambda: (n * line.f_value * line.wavelength).log10(),
+        tau0: tau(0.0),
+        equivalent_width: r.value * 1e8,
+        linear: asy.linear * 1e8,
+        flat: asy.flat.is_finite().then_some(asy.flat * 1e8),
+        damping: asy.damping * 1e8,
+        stark,
+        evaluations: r.evaluations,
+    }
 }
 
 /// Curve of growth of the line of `setup` through its own profile: the Stark profile of a
@@ -97,7 +107,6 @@ pub fn line_curve_of_growth(
     );
     // line's Γ must be the constant part: its damping asymptote is the far-wing one
     debug_assert!(line.gamma <= setup.widths.gamma() * (1.0 + 1e-12));
-    let lam = line.wavelength;
     columns
         .iter()
         .map(|&n| {
@@ -109,19 +118,8 @@ pub fn line_curve_of_growth(
                 .map(|s| s.with_varying_wing())
                 .or_else(|_| quadrature::LineScale::doppler(core, 0.0))
                 .expect("a positive core width");
-            let r = quadrature::integrate_folded(|x| -2.0 * (-tau(x)).exp_m1(), &scale, 1e-6);
-            let asy = line.asymptotes(n);
-            GrowthPoint {
-                column: n,
-                log_nf_lambda: (n * line.f_value * lam).log10(),
-                tau0: tau(0.0),
-                equivalent_width: r.value * 1e8,
-                linear: asy.linear * 1e8,
-                flat: asy.flat.is_finite().then_some(asy.flat * 1e8),
-                damping: asy.damping * 1e8,
-                stark: Some(2.0 * gamma_fn(0.6) * (n * holtsmark).powf(0.4) * 1e8),
-                evaluations: r.evaluations,
-            }
+            let stark = 2.0 * gamma_fn(0.6) * (n * holtsmark).powf(0.4) * 1e8;
+            point(line, n, tau, &scale, Some(stark))
         })
         .collect()
 }
