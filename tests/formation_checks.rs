@@ -515,7 +515,7 @@ fn thin_hydrogen_lines_carry_their_whole_oscillator_strength() {
     // ∫τ dλ = (πe²/mc) f N_l (1 − e^{−hν/kT}) λ²/c, whatever the profile: the Stark profiles
     // with the electrons' impact widths must keep unit area (without their rescaling Hα
     // falls 3.3e-3 short at 10⁴ K, the others more). The Planck and stimulated-emission
-    // factors vary across the broad lines, hence 1e-3 (reached 3.6e-4, H 2-10 at 15,000 K).
+    // factors vary across the broad lines, hence 1e-3 (reached 1.9e-4, H 2-10 at 15,000 K).
     use linegrid::constants::{C, HC_OVER_K, PI_E2_OVER_MC};
     use linegrid::transfer::special::{expn, expn_deficit, planck_nu};
     let cat = Catalogue::embedded();

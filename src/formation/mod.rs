@@ -561,6 +561,40 @@ impl LineSetup {
             }
         }
     }
+
+    /// The Lorentz wing's local coefficient at offset `x` (cm): as
+    /// [`LineSetup::wing_coefficient`], with the electron-impact widths of a Stark profile
+    /// at that offset (they fall along the wing); the same for every other line.
+    pub fn wing_coefficient_at(&self, x: f64) -> f64 {
+        match &self.stark {
+            Some(sp) if sp.has_electron_impacts() => {
+                let per_phi_nu =
+                    self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
+                per_phi_nu * sp.lorentz_wing_coefficient_at(x.abs()) * self.lambda0 * self.lambda0
+                    / C
+                    * self.thickness
+            }
+            _ => self.wing_coefficient(),
+        }
+    }
+
+    /// `scale` with the damping wing's coefficient where its analytic tail starts, for a
+    /// line whose wing law changes along the wing (see [`LineSetup::varying_wing`]), so
+    /// that the tail splits the depth there between the Lorentz and the quasi-static wing
+    /// by their local optical depths; unchanged otherwise. `per_unit` scales the
+    /// coefficient as the caller scales the line's optical depth (1 for this slab).
+    pub fn with_local_tail_wing(
+        &self,
+        scale: quadrature::LineScale,
+        per_unit: f64,
+    ) -> quadrature::LineScale {
+        match scale.tail_start() {
+            Some(x) if self.varying_wing() => scale
+                .with_tail_wing(per_unit * self.wing_coefficient_at(x))
+                .unwrap_or(scale),
+            _ => scale,
+        }
+    }
 }
 
 /// The emergent quantity (flux or intensity per unit frequency) for optical depth `tau`,
@@ -835,7 +869,7 @@ pub(crate) fn strengths_of(
         .map(|s| s.with_breaks(su.reach_ends()))
         .map(|s| {
             if su.varying_wing() {
-                s.with_varying_wing()
+                su.with_local_tail_wing(s.with_varying_wing(), 1.0)
             } else {
                 s
             }

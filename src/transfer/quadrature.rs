@@ -229,6 +229,9 @@ pub struct LineScale {
     breaks: [Option<f64>; 2],
     /// The wing is a power law only far beyond the reach (see `with_varying_wing`).
     varying: bool,
+    /// The damping wing's coefficient at the tail start, where it differs from `wing`
+    /// (see `with_tail_wing`).
+    tail_wing: Option<f64>,
 }
 
 impl LineScale {
@@ -250,6 +253,7 @@ impl LineScale {
             reach: f64::INFINITY,
             breaks: [None, None],
             varying: false,
+            tail_wing: None,
         })
     }
 
@@ -335,6 +339,27 @@ impl LineScale {
             breaks: [keep(breaks[0]), keep(breaks[1])],
             ..self
         }
+    }
+
+    /// The same line whose damping wing, where the analytic tail starts ([`Self::tail_start`]),
+    /// has the coefficient `coefficient` instead of the line's (a Lorentz width that falls
+    /// along the wing): the tail splits D(±X) between the damping and the steep wing by their
+    /// optical depths there, and the damping tail's own saturation takes its optical depth
+    /// A_X/X² from it. The panels keep the line's coefficient.
+    pub fn with_tail_wing(self, coefficient: f64) -> Result<Self, InvalidLineScale> {
+        if !(coefficient.is_finite() && coefficient >= 0.0) {
+            return Err(InvalidLineScale::Wing(coefficient));
+        }
+        Ok(Self {
+            tail_wing: Some(coefficient),
+            ..self
+        })
+    }
+
+    /// Where the analytic tail starts, |x| = X (None for a line without a wing, whose
+    /// integration ends where its core has gone, extended as needed).
+    pub fn tail_start(&self) -> Option<f64> {
+        self.has_wing().then(|| plan(self).outer)
     }
 
     /// Core width s.
@@ -734,7 +759,7 @@ fn integrate_sides(
                 }
                 let d_x = f.at(sign * p.outer);
                 let x = p.outer;
-                let tau_l = scale.wing.map_or(0.0, |a| a / (x * x));
+                let tau_l = scale.tail_wing.or(scale.wing).map_or(0.0, |a| a / (x * x));
                 let (tail, err) = match scale.steep {
                     None => {
                         let t = lorentz_wing_tail(d_x, x, tau_l);
