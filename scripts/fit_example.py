@@ -9,10 +9,13 @@ equivalent_width by default). The grid's axes are interpolated in the same coord
 axes spanning more than a decade, linear otherwise; the value in log10. Nodes whose status
 is not 0 are NaN, so a fit that needs them fails loudly instead of using them.
 The fit is scipy.optimize.least_squares (trust-region reflective, bounded to the grid) from
-several seeded starts; uncertainties come from (J^T J)^-1.
+several seeded starts; uncertainties come from (J^T J)^-1 (one-sided differences on
+each side of the minimum; on a node of a linear table, where the slope jumps, the larger
+of the one-sided covariances).
 """
 import argparse
 import csv
+import itertools
 
 import h5py
 import numpy as np
@@ -35,6 +38,46 @@ def to_coord(kind, x):
 
 def from_coord(kind, u):
     return {"theta": lambda t: 5040.0 / t, "log10": lambda t: 10.0**t, "linear": lambda t: t}[kind](u)
+
+
+def covariance(residuals, z, lo, hi, rel_step=1e-6, kink=1e-3):
+    """(J^T J)^-1 in the interpolation coordinates at z, or None if singular.
+
+    J by one-sided differences below and above z on each free axis. Where the two differ by
+    more than `kink` relative (a node of a multilinear table, where the slope jumps), both
+    sides are tried in every combination and the largest covariance (largest determinant)
+    is kept, so that the answer does not depend on the side the minimiser ended on; where
+    they agree, their mean (a central difference) is used.
+    """
+    r0 = residuals(z)
+    sides = []
+    for j in range(len(z)):
+        h = rel_step * (hi[j] - lo[j])
+        cols = []
+        for step in (-h, h):
+            zz = z.copy()
+            zz[j] = np.clip(z[j] + step, lo[j], hi[j])
+            if zz[j] == z[j]:
+                cols.append(None)
+                continue
+            cols.append((residuals(zz) - r0) / (zz[j] - z[j]))
+        cols = [c for c in cols if c is not None]
+        scale = max(np.abs(c).max() for c in cols)
+        if len(cols) == 2 and scale > 0 and np.abs(cols[0] - cols[1]).max() > kink * scale:
+            sides.append(cols)
+        else:
+            sides.append([sum(cols) / len(cols)])
+    best = None
+    for pick in itertools.product(*[range(len(c)) for c in sides]):
+        jac = np.column_stack([sides[j][k] for j, k in enumerate(pick)])
+        try:
+            cov = np.linalg.inv(jac.T @ jac)
+        except np.linalg.LinAlgError:
+            continue
+        det = np.linalg.det(cov)
+        if best is None or det > best[0]:
+            best = (det, cov)
+    return None if best is None else best[1]
 
 
 def main():
@@ -107,12 +150,9 @@ def main():
         if not any(np.all(np.abs(r.x - b[0]) <= 0.03 * (hi - lo)) for b in best):
             best.append((r.x, chi2, r.jac))
     best.sort(key=lambda b: b[1])
-    for i, (z, chi2, jac) in enumerate(best):
+    for i, (z, chi2, _) in enumerate(best):
         print(f"minimum {i + 1}: chi2 = {chi2:.4f}")
-        try:
-            cov_u = np.linalg.inv(jac.T @ jac)
-        except np.linalg.LinAlgError:
-            cov_u = None
+        cov_u = covariance(residuals, z, lo, hi)
         for j, d in enumerate(free):
             x = from_coord(kinds[d], z[j])
             if cov_u is None:

@@ -109,6 +109,65 @@ impl Problem<'_> {
         x
     }
 
+    /// The covariance (JᵀJ)⁻¹ over the free axes (physical units, row-major) at `z`, or None
+    /// where JᵀJ is singular or a stencil is flagged.
+    ///
+    /// Where the interpolant has a kink along a free axis at `z` (a node of a multilinear
+    /// table: its gradient jumps there), J is one-sided and which side the minimiser's last
+    /// rounding put it on would decide the answer. The gradient is therefore taken just
+    /// below and just above z on each free axis (±`KINK_PROBE` in z); along an axis whose
+    /// two one-sided columns differ by more than `KINK_TOLERANCE` relative, both sides are
+    /// tried (every combination, up to `KINK_AXES` such axes), and the largest covariance
+    /// (largest determinant: the side of the smaller slopes) is returned. Elsewhere J is
+    /// taken at z itself.
+    fn covariance(&self, z: &[f64]) -> Option<Vec<f64>> {
+        let nf = self.free.len();
+        let (r, jac) = self.residuals(z, true)?;
+        // one-sided columns per free axis (None: smooth there, or at the box's edge)
+        let mut sides: Vec<Option<[Vec<f64>; 2]>> = vec![None; nf];
+        for j in 0..nf {
+            let column = |dz: f64| -> Option<Vec<f64>> {
+                let mut zz = z.to_vec();
+                zz[j] = (z[j] + dz).clamp(0.0, 1.0);
+                (zz[j].to_bits() != z[j].to_bits()).then_some(())?;
+                self.residuals(&zz, true)
+                    .map(|(_, jj)| jj.iter().map(|row| row[j]).collect())
+            };
+            if let (Some(lo), Some(hi)) = (column(-KINK_PROBE), column(KINK_PROBE)) {
+                let scale = lo.iter().chain(&hi).fold(0.0f64, |m, v| m.max(v.abs()));
+                let jump = lo
+                    .iter()
+                    .zip(&hi)
+                    .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()));
+                if scale > 0.0 && jump > KINK_TOLERANCE * scale {
+                    sides[j] = Some([lo, hi]);
+                }
+            }
+        }
+        let kinked: Vec<usize> = (0..nf).filter(|&j| sides[j].is_some()).collect();
+        let kinked = &kinked[..kinked.len().min(KINK_AXES)];
+        let mut best: Option<(f64, Vec<f64>)> = None;
+        for pick in 0..(1usize << kinked.len()) {
+            let mut jj = jac.clone();
+            for (bit, &j) in kinked.iter().enumerate() {
+                let col =
+                    &sides[j].as_ref().expect("kinked axis has both sides")[(pick >> bit) & 1];
+                for (row, &v) in jj.iter_mut().zip(col) {
+                    row[j] = v;
+                }
+            }
+            let (a, _) = normal_equations(&r, &jj, nf);
+            let Some(inv) = invert(&a, nf) else {
+                continue;
+            };
+            let det = determinant_spd(&inv, nf);
+            if best.as_ref().is_none_or(|(d, _)| det > *d) {
+                best = Some((det, inv));
+            }
+        }
+        best.map(|(_, inv)| inv)
+    }
+
     /// Residuals and Jacobian in z (rows = observations), or None on a flagged stencil.
     fn residuals(&self, z: &[f64], wrt_x: bool) -> Option<(Vec<f64>, Vec<Vec<f64>>)> {
         let x = self.x_of(z);
@@ -179,6 +238,51 @@ fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
         x[i] = s / l[i][i];
     }
     Some(x)
+}
+
+/// Probe distance in z for one-sided gradients (see `Problem::covariance`).
+const KINK_PROBE: f64 = 1e-7;
+/// Relative jump of a Jacobian column that counts as a kink.
+const KINK_TOLERANCE: f64 = 1e-4;
+/// At most this many kinked axes are combined (2^k covariances).
+const KINK_AXES: usize = 4;
+
+/// (a)⁻¹ of a symmetric positive definite n×n matrix, column by column, or None.
+fn invert(a: &[Vec<f64>], n: usize) -> Option<Vec<f64>> {
+    let mut inv = vec![0.0; n * n];
+    for j in 0..n {
+        let mut e = vec![0.0; n];
+        e[j] = 1.0;
+        let col = cholesky_solve(a, &e)?;
+        for i in 0..n {
+            inv[i * n + j] = col[i];
+        }
+    }
+    Some(inv)
+}
+
+/// Determinant of a symmetric positive definite n×n matrix (row-major) by Cholesky, or 0.
+fn determinant_spd(m: &[f64], n: usize) -> f64 {
+    let mut l = vec![0.0; n * n];
+    let mut det = 1.0;
+    for i in 0..n {
+        for j in 0..=i {
+            let mut s = m[i * n + j];
+            for k in 0..j {
+                s -= l[i * n + k] * l[j * n + k];
+            }
+            if i == j {
+                if s.is_nan() || s <= 0.0 {
+                    return 0.0;
+                }
+                l[i * n + i] = s.sqrt();
+                det *= s;
+            } else {
+                l[i * n + j] = s / l[j * n + j];
+            }
+        }
+    }
+    det
 }
 
 fn normal_equations(r: &[f64], jac: &[Vec<f64>], n: usize) -> (Vec<Vec<f64>>, Vec<f64>) {
@@ -349,34 +453,9 @@ pub fn fit(
         .map(|(z, c, hits)| {
             let x = p.x_of(&z);
             let mut unc = vec![Some(0.0); nd];
-            let mut cov = None;
-            if let Some((r, jac)) = p.residuals(&z, true) {
-                let (a, _) = normal_equations(&r, &jac, nf);
-                // Invert column by column.
-                let mut inv = vec![0.0; nf * nf];
-                let mut ok = true;
-                for j in 0..nf {
-                    let mut e = vec![0.0; nf];
-                    e[j] = 1.0;
-                    match cholesky_solve(&a, &e) {
-                        Some(col) => {
-                            for i in 0..nf {
-                                inv[i * nf + j] = col[i];
-                            }
-                        }
-                        None => ok = false,
-                    }
-                }
-                for (j, &d) in free.iter().enumerate() {
-                    unc[d] = if ok {
-                        Some(inv[j * nf + j].sqrt())
-                    } else {
-                        None
-                    };
-                }
-                if ok {
-                    cov = Some(inv);
-                }
+            let cov = p.covariance(&z);
+            for (j, &d) in free.iter().enumerate() {
+                unc[d] = cov.as_ref().map(|c| c[j * nf + j].sqrt());
             }
             Minimum {
                 at_edge: z.iter().any(|&v| v <= 1e-9 || v >= 1.0 - 1e-9),
@@ -394,5 +473,79 @@ pub fn fit(
         minima,
         degenerate,
         failed_starts: failed,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::grid::store::AxisMeta;
+    use crate::interp::{Method, Options, Table};
+
+    /// A one-axis table (metallicity, linear coordinate) with the given node values.
+    fn line_table(nodes: &[f64], values: &[f64]) -> Table {
+        Table {
+            path: "test.h5".into(),
+            name: "q".into(),
+            axes: vec![AxisMeta {
+                name: "metallicity".into(),
+                units: String::new(),
+                long_name: String::new(),
+                values: nodes.to_vec(),
+            }],
+            values: values.to_vec(),
+            status: vec![0; values.len()],
+            status_flags: vec![(0, "converged".into())],
+        }
+    }
+
+    fn one_minimum(table: &Table, method: Method, y: f64, sigma: f64) -> Minimum {
+        let options = Options {
+            method,
+            ..Options::default()
+        };
+        let m = Interpolator::new(table, &options).unwrap();
+        let r = fit(&[&m], &[y], &[sigma], &[None], &FitOptions::default());
+        r.minima[0].clone()
+    }
+
+    #[test]
+    fn a_minimum_on_a_kink_takes_the_larger_one_sided_uncertainty() {
+        // Linear error propagation (common practice, no source): σ_x = σ_y/|dy/dx|. On a node
+        // of a multilinear table the slope jumps; the answer must not depend on the side the
+        // minimiser ends on, and is the conservative one, σ_y over the smaller slope.
+        let nodes = [-1.0, 0.0, 1.0];
+        for values in [[0.0, 1.0, 3.0], [0.0, 2.0, 3.0]] {
+            let t = line_table(&nodes, &values);
+            let m = one_minimum(&t, Method::Linear, values[1], 0.1);
+            assert!(m.parameters[0].abs() < 1e-6, "{m:?}");
+            let u = m.uncertainties[0].unwrap();
+            assert!((u - 0.1).abs() < 1e-9, "slopes {values:?}: σ = {u}");
+            let c = m.covariance.as_ref().unwrap();
+            assert!((c[0] - u * u).abs() < 1e-15);
+        }
+        // away from a node: the local slope (2 in the upper cell of the first table)
+        let t = line_table(&nodes, &[0.0, 1.0, 3.0]);
+        let m = one_minimum(&t, Method::Linear, 2.0, 0.1);
+        assert!((m.parameters[0] - 0.5).abs() < 1e-6, "{m:?}");
+        assert!((m.uncertainties[0].unwrap() - 0.05).abs() < 1e-9, "{m:?}");
+        // a smooth interpolant keeps its own gradient at the node
+        let t = line_table(&[-2.0, -1.0, 0.0, 1.0, 2.0], &[-4.0, -1.0, 1.0, 3.0, 6.0]);
+        let ip = Interpolator::new(
+            &t,
+            &Options {
+                method: Method::Cubic,
+                ..Options::default()
+            },
+        )
+        .unwrap();
+        let g = ip.evaluate(&[0.0]).unwrap().gradient[0];
+        let m = one_minimum(&t, Method::Cubic, 1.0, 0.1);
+        assert!(m.parameters[0].abs() < 1e-6, "{m:?}");
+        let expect = 0.1 / g.abs();
+        assert!(
+            (m.uncertainties[0].unwrap() / expect - 1.0).abs() < 1e-6,
+            "{m:?} against {expect}"
+        );
     }
 }
