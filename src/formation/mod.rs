@@ -508,28 +508,18 @@ impl LineSetup {
         // fall exactly as 1/x² (the analytic tail then holds to infinity).
         match &self.stark {
             None => self.kappa_scale * voigt_h(self.a, x * self.per_doppler) * self.thickness,
-            Some(sp) => {
-                // φ_λ: every component (Holtsmark ⊗ Doppler ⊗ Lorentz, the unshifted ones
-                // Doppler ⊗ Lorentz), per cm.
-                let sqrt_pi = std::f64::consts::PI.sqrt();
-                let phi_lambda = sp.phi(x);
-                // κ_scale H/(√π Δν_D) per unit φ_ν; φ_ν = φ_λ Δλ_D/Δν_D·(1/Δλ_D)… i.e.
-                // φ_ν = φ_λ λ²/c, and κ_scale = (πe²/mc) f n_l stim/(√π Δν_D).
-                let per_phi_nu = self.kappa_scale * sqrt_pi * self.widths.doppler_hz;
-                per_phi_nu * phi_lambda * self.lambda0 * self.lambda0 / C * self.thickness
-            }
+            // φ_λ: every component (Holtsmark ⊗ Doppler ⊗ Lorentz, the unshifted ones
+            // Doppler ⊗ Lorentz), per cm.
+            Some(sp) => self.tau_of_stark(sp.phi(x)),
         }
     }
 
     /// Coefficient K of the quasi-static Stark wing τ_line ≈ K |x|^{−5/2} (x in cm) of the
     /// shifted components, for hydrogen-like lines (0 without a Stark profile).
     pub fn stark_wing_coefficient(&self) -> f64 {
-        self.stark.as_ref().map_or(0.0, |sp| {
-            let per_phi_nu =
-                self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
-            per_phi_nu * sp.far_wing_coefficient() * self.lambda0 * self.lambda0 / C
-                * self.thickness
-        })
+        self.stark
+            .as_ref()
+            .map_or(0.0, |sp| self.tau_of_stark(sp.far_wing_coefficient()))
     }
 
     /// Whether the Lorentz wing's coefficient changes along the wing (electron-impact
@@ -553,13 +543,17 @@ impl LineSetup {
             // Every Stark component carries a Lorentz wing (the common widths and its own
             // electron-impact width, with its core value: it falls along the wing, which
             // is then integrated to ten times the reach, `LineScale::with_varying_wing`).
-            Some(sp) => {
-                let per_phi_nu =
-                    self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
-                per_phi_nu * sp.lorentz_wing_coefficient() * self.lambda0 * self.lambda0 / C
-                    * self.thickness
-            }
+            Some(sp) => self.tau_of_stark(sp.lorentz_wing_coefficient()),
         }
+    }
+
+    /// Line optical depth of this slab from a Stark-profile quantity per unit wavelength
+    /// (the profile φ_λ in cm⁻¹, or a wing coefficient of it): κ_scale H/(√π Δν_D) per
+    /// unit φ_ν, φ_ν = φ_λ λ²/c, and κ_scale = (πe²/mc) f n_l stim/(√π Δν_D).
+    #[inline]
+    fn tau_of_stark(&self, per_lambda: f64) -> f64 {
+        let per_phi_nu = self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
+        per_phi_nu * per_lambda * self.lambda0 * self.lambda0 / C * self.thickness
     }
 
     /// The Lorentz wing's local coefficient at offset `x` (cm): as
@@ -568,11 +562,7 @@ impl LineSetup {
     pub fn wing_coefficient_at(&self, x: f64) -> f64 {
         match &self.stark {
             Some(sp) if sp.has_electron_impacts() => {
-                let per_phi_nu =
-                    self.kappa_scale * std::f64::consts::PI.sqrt() * self.widths.doppler_hz;
-                per_phi_nu * sp.lorentz_wing_coefficient_at(x.abs()) * self.lambda0 * self.lambda0
-                    / C
-                    * self.thickness
+                self.tau_of_stark(sp.lorentz_wing_coefficient_at(x.abs()))
             }
             _ => self.wing_coefficient(),
         }

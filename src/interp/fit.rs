@@ -157,11 +157,11 @@ impl Problem<'_> {
                 }
             }
             let (a, _) = normal_equations(&r, &jj, nf);
-            let Some(inv) = invert(&a, nf) else {
+            let Some((inv, det)) = invert(&a) else {
                 continue;
             };
-            let det = determinant_spd(&inv, nf);
-            if best.as_ref().is_none_or(|(d, _)| det > *d) {
+            // the largest covariance: the smallest det(JᵀJ)
+            if best.as_ref().is_none_or(|(d, _)| det < *d) {
                 best = Some((det, inv));
             }
         }
@@ -201,9 +201,9 @@ impl Problem<'_> {
     }
 }
 
-/// Solve the symmetric positive system A x = b (Cholesky); None if not positive definite.
-fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
-    let n = b.len();
+/// Cholesky factor L (A = L Lᵀ) of a symmetric positive matrix; None if not positive definite.
+fn cholesky(a: &[Vec<f64>]) -> Option<Vec<Vec<f64>>> {
+    let n = a.len();
     let mut l = vec![vec![0.0; n]; n];
     for i in 0..n {
         for j in 0..=i {
@@ -221,6 +221,12 @@ fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
             }
         }
     }
+    Some(l)
+}
+
+/// x with L Lᵀ x = b, by forward and back substitution.
+fn cholesky_substitute(l: &[Vec<f64>], b: &[f64]) -> Vec<f64> {
+    let n = b.len();
     let mut y = vec![0.0; n];
     for i in 0..n {
         let mut s = b[i];
@@ -237,7 +243,12 @@ fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
         }
         x[i] = s / l[i][i];
     }
-    Some(x)
+    x
+}
+
+/// Solve the symmetric positive system A x = b (Cholesky); None if not positive definite.
+fn cholesky_solve(a: &[Vec<f64>], b: &[f64]) -> Option<Vec<f64>> {
+    cholesky(a).map(|l| cholesky_substitute(&l, b))
 }
 
 /// Probe distance in z for one-sided gradients (see `Problem::covariance`).
@@ -247,42 +258,21 @@ const KINK_TOLERANCE: f64 = 1e-4;
 /// At most this many kinked axes are combined (2^k covariances).
 const KINK_AXES: usize = 4;
 
-/// (a)⁻¹ of a symmetric positive definite n×n matrix, column by column, or None.
-fn invert(a: &[Vec<f64>], n: usize) -> Option<Vec<f64>> {
+/// A⁻¹ (row-major) of a symmetric positive definite n×n matrix and det A, from one
+/// Cholesky factorisation; None if not positive definite.
+fn invert(a: &[Vec<f64>]) -> Option<(Vec<f64>, f64)> {
+    let n = a.len();
+    let l = cholesky(a)?;
+    let det = (0..n).map(|i| l[i][i] * l[i][i]).product();
     let mut inv = vec![0.0; n * n];
     for j in 0..n {
         let mut e = vec![0.0; n];
         e[j] = 1.0;
-        let col = cholesky_solve(a, &e)?;
-        for i in 0..n {
-            inv[i * n + j] = col[i];
+        for (i, v) in cholesky_substitute(&l, &e).into_iter().enumerate() {
+            inv[i * n + j] = v;
         }
     }
-    Some(inv)
-}
-
-/// Determinant of a symmetric positive definite n×n matrix (row-major) by Cholesky, or 0.
-fn determinant_spd(m: &[f64], n: usize) -> f64 {
-    let mut l = vec![0.0; n * n];
-    let mut det = 1.0;
-    for i in 0..n {
-        for j in 0..=i {
-            let mut s = m[i * n + j];
-            for k in 0..j {
-                s -= l[i * n + k] * l[j * n + k];
-            }
-            if i == j {
-                if s.is_nan() || s <= 0.0 {
-                    return 0.0;
-                }
-                l[i * n + i] = s.sqrt();
-                det *= s;
-            } else {
-                l[i * n + j] = s / l[j * n + j];
-            }
-        }
-    }
-    det
+    Some((inv, det))
 }
 
 fn normal_equations(r: &[f64], jac: &[Vec<f64>], n: usize) -> (Vec<Vec<f64>>, Vec<f64>) {
