@@ -41,27 +41,30 @@ def from_coord(kind, u):
 
 
 def covariance(residuals, z, lo, hi, rel_step=1e-6, kink=1e-3):
-    """(J^T J)^-1 in the interpolation coordinates at z, or None if singular.
+    """(J^T J)^-1 in the interpolation coordinates at z, or None if unconstrained.
 
-    J by one-sided differences below and above z on each free axis. Where the two differ by
-    more than `kink` relative (a node of a multilinear table, where the slope jumps), both
-    sides are tried in every combination and the largest covariance (largest determinant)
-    is kept, so that the answer does not depend on the side the minimiser ended on; where
-    they agree, their mean (a central difference) is used.
+    J by one-sided differences below and above z on each free axis, each from two points on
+    its own side (z - 2h, z - h and z + h, z + 2h), so that neither blends the two slopes
+    when z lies within h of a node. Where the two differ by more than `kink` relative (a node
+    of a multilinear table, where the slope jumps), both sides are tried in every
+    combination and the largest covariance (smallest det J^T J) is kept, so that the answer
+    does not depend on the side the minimiser ended on; where they agree, their mean (a
+    central difference) is used. If any combination leaves J^T J singular, or a difference
+    is not finite, the answer is None.
     """
-    r0 = residuals(z)
     sides = []
     for j in range(len(z)):
         h = rel_step * (hi[j] - lo[j])
         cols = []
         for step in (-h, h):
-            zz = z.copy()
-            zz[j] = np.clip(z[j] + step, lo[j], hi[j])
-            if zz[j] == z[j]:
-                cols.append(None)
-                continue
-            cols.append((residuals(zz) - r0) / (zz[j] - z[j]))
-        cols = [c for c in cols if c is not None]
+            near, far = z.copy(), z.copy()
+            near[j] = np.clip(z[j] + step, lo[j], hi[j])
+            far[j] = np.clip(z[j] + 2 * step, lo[j], hi[j])
+            if far[j] == near[j]:
+                continue  # at the box's edge on this side
+            cols.append((residuals(far) - residuals(near)) / (far[j] - near[j]))
+        if not cols or not all(np.all(np.isfinite(c)) for c in cols):
+            return None
         scale = max(np.abs(c).max() for c in cols)
         if len(cols) == 2 and scale > 0 and np.abs(cols[0] - cols[1]).max() > kink * scale:
             sides.append(cols)
@@ -70,14 +73,15 @@ def covariance(residuals, z, lo, hi, rel_step=1e-6, kink=1e-3):
     best = None
     for pick in itertools.product(*[range(len(c)) for c in sides]):
         jac = np.column_stack([sides[j][k] for j, k in enumerate(pick)])
+        a = jac.T @ jac
         try:
-            cov = np.linalg.inv(jac.T @ jac)
+            np.linalg.cholesky(a)  # raises unless positive definite
         except np.linalg.LinAlgError:
-            continue
-        det = np.linalg.det(cov)
-        if best is None or det > best[0]:
-            best = (det, cov)
-    return None if best is None else best[1]
+            return None
+        det = np.linalg.det(a)
+        if best is None or det < best[0]:
+            best = (det, a)
+    return np.linalg.inv(best[1])
 
 
 def main():

@@ -118,8 +118,10 @@ impl Problem<'_> {
     /// below and just above z on each free axis (±`KINK_PROBE` in z); along an axis whose
     /// two one-sided columns differ by more than `KINK_TOLERANCE` relative, both sides are
     /// tried (every combination, up to `KINK_AXES` such axes), and the largest covariance
-    /// (largest determinant: the side of the smaller slopes) is returned. Elsewhere J is
-    /// taken at z itself.
+    /// (smallest det JᵀJ: the side of the smaller slopes) is returned. If any combination
+    /// leaves JᵀJ singular, or a probed slope is not finite, the answer is None
+    /// (unconstrained). Beyond `KINK_AXES` kinked axes the rest keep the gradient at z
+    /// itself (the side the minimiser ended on). Elsewhere J is taken at z itself.
     fn covariance(&self, z: &[f64]) -> Option<Vec<f64>> {
         let nf = self.free.len();
         let (r, jac) = self.residuals(z, true)?;
@@ -134,6 +136,10 @@ impl Problem<'_> {
                     .map(|(_, jj)| jj.iter().map(|row| row[j]).collect())
             };
             if let (Some(lo), Some(hi)) = (column(-KINK_PROBE), column(KINK_PROBE)) {
+                // a slope that is not a number on either side: unconstrained, not smooth
+                if lo.iter().chain(&hi).any(|v| !v.is_finite()) {
+                    return None;
+                }
                 let scale = lo.iter().chain(&hi).fold(0.0f64, |m, v| m.max(v.abs()));
                 let jump = lo
                     .iter()
@@ -157,9 +163,8 @@ impl Problem<'_> {
                 }
             }
             let (a, _) = normal_equations(&r, &jj, nf);
-            let Some((inv, det)) = invert(&a) else {
-                continue;
-            };
+            // one side that leaves a direction unconstrained makes the whole answer so
+            let (inv, det) = invert(&a)?;
             // the largest covariance: the smallest det(JᵀJ)
             if best.as_ref().is_none_or(|(d, _)| det < *d) {
                 best = Some((det, inv));
@@ -489,6 +494,28 @@ mod tests {
         }
     }
 
+    /// A two-axis table (linear coordinates, nodes −1, 0, 1 on both) with node values
+    /// f(x, y), row-major (x slowest).
+    fn square_table(f: impl Fn(usize, usize) -> f64) -> Table {
+        let axis = |name: &str| AxisMeta {
+            name: name.into(),
+            units: String::new(),
+            long_name: String::new(),
+            values: vec![-1.0, 0.0, 1.0],
+        };
+        Table {
+            path: "test.h5".into(),
+            name: "q".into(),
+            axes: vec![axis("x"), axis("y")],
+            values: (0..3)
+                .flat_map(|i| (0..3).map(move |j| (i, j)))
+                .map(|(i, j)| f(i, j))
+                .collect(),
+            status: vec![0; 9],
+            status_flags: vec![(0, "converged".into())],
+        }
+    }
+
     fn one_minimum(table: &Table, method: Method, y: f64, sigma: f64) -> Minimum {
         let options = Options {
             method,
@@ -537,5 +564,50 @@ mod tests {
             (m.uncertainties[0].unwrap() / expect - 1.0).abs() < 1e-6,
             "{m:?} against {expect}"
         );
+    }
+
+    #[test]
+    fn a_minimum_on_a_corner_of_four_cells_takes_the_smaller_slope_on_each_axis() {
+        // Two observables on a 3 × 3 bilinear table, one varying along each axis with slopes
+        // 1 then 2 (x) and 2 then 1 (y): at the corner (0, 0) J is diagonal in every one of
+        // the four side combinations, and σ = σ_y/(smaller slope) on both axes (linear error
+        // propagation, common practice, no source).
+        let gx = [0.0, 1.0, 3.0];
+        let gy = [0.0, 2.0, 3.0];
+        let a = square_table(|i, _| gx[i]);
+        let b = square_table(|_, j| gy[j]);
+        let options = Options::default();
+        let ma = Interpolator::new(&a, &options).unwrap();
+        let mb = Interpolator::new(&b, &options).unwrap();
+        let r = fit(
+            &[&ma, &mb],
+            &[1.0, 2.0],
+            &[0.1, 0.1],
+            &[None, None],
+            &FitOptions::default(),
+        );
+        let m = &r.minima[0];
+        assert!(m.parameters.iter().all(|v| v.abs() < 1e-6), "{m:?}");
+        for (d, u) in m.uncertainties.iter().enumerate() {
+            let u = u.unwrap();
+            assert!((u - 0.1).abs() < 1e-9, "axis {d}: σ = {u}");
+        }
+        let c = m.covariance.as_ref().unwrap();
+        assert!(c[1].abs() < 1e-12 && c[2].abs() < 1e-12, "{c:?}");
+    }
+
+    #[test]
+    fn a_side_without_slope_leaves_the_minimum_unconstrained() {
+        // Slope 1 below the node, 0 above: a fit of the node value is not bounded above, so
+        // no finite uncertainty may be reported whichever side the minimiser ends on.
+        let t = line_table(&[-1.0, 0.0, 1.0], &[0.0, 1.0, 1.0]);
+        let options = Options::default();
+        let m = Interpolator::new(&t, &options).unwrap();
+        let r = fit(&[&m], &[1.0], &[0.1], &[None], &FitOptions::default());
+        assert!(!r.minima.is_empty());
+        for m in &r.minima {
+            assert!(m.uncertainties[0].is_none(), "{m:?}");
+            assert!(m.covariance.is_none(), "{m:?}");
+        }
     }
 }
