@@ -235,6 +235,69 @@ fn damping_dominated_lines_match_a_brute_force_sum_of_the_model_depth() {
     }
 }
 
+#[test]
+fn saturated_stark_lines_far_tail_matches_a_brute_force_sum_of_the_model_depth() {
+    // Hβ through its Stark profile (no damping override) at columns where the wing beyond
+    // ten times the reach still carries W: the analytic tail there splits D(±X) between the
+    // Lorentz (electron-impact) and the quasi-static wing by their local optical depths.
+    // Twin: the model's own depth summed by the composite Simpson rule on x = s sinh u out
+    // to 1000 λ₀, plus D(x) x/(q − 1) beyond (q the local power of the last stretch; that
+    // part is checked to be below 10⁻⁴ of W). Same depth as the test above. Reached: 1.3e-6,
+    // 5.8e-6, 9.1e-6 at N_H = 10²⁴, 10²⁵, 10²⁶ cm⁻² (W 73, 169, 384 Å); split by the
+    // line-centre coefficients instead, 1.2e-4 already at 10²⁴.
+    let data = AtomicData::embedded();
+    let cat = Catalogue::embedded();
+    let t = 9_500.0;
+    let state = pure_h(t, 1e15, LevelCutoff::MaxShell(30));
+    let line = cat.get("H-beta").unwrap();
+    for column in [1e24, 1e25, 1e26] {
+        let opts = SlabOptions {
+            geometry: Geometry::HydrogenColumn(column),
+            background: Background::Planck(1.2 * t),
+            microturbulence: 2e5,
+            view: View::Intensity(1.0),
+            continuum: false,
+            damping: None,
+        };
+        let su = setup_line(data, &state, &opts, line).unwrap();
+        assert!(su.stark.is_some() && su.varying_wing());
+        let got = line_strength(data, &state, &opts, line).unwrap();
+        let depth = |x: f64| {
+            let y = HC_OVER_K / (su.wavelength_at(x) * t);
+            let tau = su.profile_tau(x) * su.stim_ratio(y);
+            su.jacobian(x) * (1.0 - (y / 1.2).exp_m1() / y.exp_m1()) * -(-tau).exp_m1()
+        };
+        let s = su.widths.doppler_cm;
+        let u_max = (1000.0 * su.lambda0 / s).asinh();
+        let x_end = s * u_max.sinh();
+        let both = |x: f64| depth(x) + depth(-x);
+        let q = -(both(x_end) / both(0.9 * x_end)).ln() / (1.0f64 / 0.9).ln();
+        let beyond = both(x_end) * x_end / (q - 1.0);
+        let body = simpson_sinh(both, s, u_max, 2_000_000);
+        assert!(
+            beyond <= 1e-4 * body,
+            "{column:e}: {beyond:e} beyond, q = {q}"
+        );
+        let brute = (body + beyond) * 1e8;
+        let w = got.equivalent_width.unwrap();
+        // the share of W beyond ten times the reach, where the analytic tail takes over
+        let r = su.reach_ends();
+        let near = simpson_sinh(depth, s, (10.0 * r[0] / s).asinh(), 400_000)
+            + simpson_sinh(|x| depth(-x), s, (10.0 * r[1] / s).asinh(), 400_000);
+        let far = 1.0 - near * 1e8 / brute;
+        let err = (w / brute - 1.0).abs();
+        eprintln!(
+            "H-beta N_H={column:e}: W {w:.5} Å, {err:.1e}, {:.2} % beyond ten reaches, q = {q:.3}",
+            100.0 * far
+        );
+        assert!(
+            err <= 1e-4,
+            "N_H={column:e}: W {w} Å vs {brute} Å ({err:e}; {:.2} % beyond ten reaches)",
+            100.0 * far
+        );
+    }
+}
+
 /// ∫₀^{u_max} f(s sinh u) s cosh u du = ∫₀^{s sinh u_max} f(x) dx by the composite Simpson
 /// rule with `n` (even) intervals in u.
 fn simpson_sinh(f: impl Fn(f64) -> f64, s: f64, u_max: f64, n: usize) -> f64 {

@@ -579,9 +579,12 @@ impl LineSetup {
         per_unit: f64,
     ) -> quadrature::LineScale {
         match scale.tail_start() {
-            Some(x) if self.varying_wing() => scale
-                .with_tail_wing(per_unit * self.wing_coefficient_at(x))
-                .unwrap_or(scale),
+            Some(x) if self.varying_wing() => {
+                // a rounding below zero is no wing; only a non-finite coefficient (an
+                // overflow upstream) keeps the line-centre one
+                let a = (per_unit * self.wing_coefficient_at(x)).max(0.0);
+                scale.with_tail_wing(a).unwrap_or(scale)
+            }
             _ => scale,
         }
     }

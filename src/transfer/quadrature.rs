@@ -59,9 +59,13 @@
 //! depth τ_w(x) = A/x² + K x^{−q} used for x_g and the edge test above, the wing saturates
 //! out to max(√A, K^{1/q}), and where it dominates at the wing panel's middle the panel's
 //! map is x = σ x_I v^{−p} with p = 1/(q − 1), under which D dx is again constant in v in
-//! the linear regime; its tail starts at X = 100 x_I and is split between the two wings by
-//! their optical depths at X, the steep part as D X/(q − 1) (its linear regime), with the
-//! error estimate |tail| (τ_X + 10 (s/X)^{3/2}) (the next term of the Holtsmark series).
+//! the linear regime; its tail starts at X = 100 x_I (with a varying wing, at the numerical
+//! end above) and is split between the two wings by their optical depths at X, A_X/X² and
+//! K X^{−q}, the steep part as D X/(q − 1) (its linear regime), with the error estimate
+//! |tail| (τ_X + 10 (s/X)^{3/2}) (the next term of the Holtsmark series). A_X is the line's
+//! A unless the caller gives the damping wing's own coefficient at X (`with_tail_wing`: a
+//! Lorentz width that has fallen along the wing by then), which is what makes the split
+//! follow the local optical depths rather than the line-centre ones.
 //!
 //! Without a wing the cut-off X is where the Doppler core is at 10⁻¹² of max(τ₀, 1); the part
 //! beyond is bounded by |D(X)| X (the integral of a depth falling at least as fast as 1/x²)
@@ -282,6 +286,7 @@ impl LineScale {
         }
         Ok(Self {
             wing: (coefficient > 0.0).then_some(coefficient),
+            tail_wing: None,
             ..self
         })
     }
@@ -302,6 +307,7 @@ impl LineScale {
         }
         Ok(Self {
             steep: (coefficient > 0.0).then_some((coefficient, exponent)),
+            tail_wing: None,
             ..self
         })
     }
@@ -316,7 +322,11 @@ impl LineScale {
         if reach.is_nan() || reach <= 0.0 {
             return Err(InvalidLineScale::Reach(reach));
         }
-        Ok(Self { reach, ..self })
+        Ok(Self {
+            reach,
+            tail_wing: None,
+            ..self
+        })
     }
 
     /// The same line whose wing law still changes out to about the reach (e.g. a Lorentz
@@ -326,6 +336,7 @@ impl LineScale {
     pub fn with_varying_wing(self) -> Self {
         Self {
             varying: true,
+            tail_wing: None,
             ..self
         }
     }
@@ -345,7 +356,9 @@ impl LineScale {
     /// has the coefficient `coefficient` instead of the line's (a Lorentz width that falls
     /// along the wing): the tail splits D(±X) between the damping and the steep wing by their
     /// optical depths there, and the damping tail's own saturation takes its optical depth
-    /// A_X/X² from it. The panels keep the line's coefficient.
+    /// A_X/X² from it. The panels keep the line's coefficient. Set it last: the setters
+    /// that move the tail start (`with_wing`, `with_steep_wing`, `with_reach`,
+    /// `with_varying_wing`) drop it, since it belongs to one X.
     pub fn with_tail_wing(self, coefficient: f64) -> Result<Self, InvalidLineScale> {
         if !(coefficient.is_finite() && coefficient >= 0.0) {
             return Err(InvalidLineScale::Wing(coefficient));
@@ -1261,6 +1274,26 @@ mod tests {
             let y = (x - 1.5) / 0.8;
             tau0 * ((-x * x).exp() + 0.4 * (-y * y).exp()) + a_coef / (x * x + 1.0)
         }
+    }
+
+    #[test]
+    fn a_tail_wing_belongs_to_one_tail_start() {
+        // Common practice, no source: a setter that moves X drops the coefficient at X.
+        let s = LineScale::voigt(1.0, 1e4, 0.01)
+            .unwrap()
+            .with_steep_wing(50.0, 2.5)
+            .unwrap();
+        let t = s.with_tail_wing(3.0).unwrap();
+        assert_ne!(t, s);
+        assert_eq!(t.with_reach(300.0).unwrap(), s.with_reach(300.0).unwrap());
+        assert_eq!(t.with_varying_wing(), s.with_varying_wing());
+        assert_eq!(t.with_wing(7.0).unwrap(), s.with_wing(7.0).unwrap());
+        assert_eq!(
+            t.with_steep_wing(60.0, 2.5).unwrap(),
+            s.with_steep_wing(60.0, 2.5).unwrap()
+        );
+        // the breaks do not move X and keep it
+        assert_ne!(t.with_breaks([5.0, 6.0]), s.with_breaks([5.0, 6.0]));
     }
 
     #[test]
